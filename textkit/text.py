@@ -1,0 +1,303 @@
+"""Text processing: normalise, redact, tokenise once into a token stream.
+
+The whole corpus is tokenised in one regular-expression pass and stored as a
+:class:`TokenStream`: an integer code per token, the sorted vocabulary, and
+the offsets of each document's tokens. Everything downstream (coding,
+keyness, topics) works on those arrays with numpy and scipy.sparse.
+
+Normalisation (what a token is built from)
+------------------------------------------
+* Unicode NFKC (full-width letters, ligatures, "…" become plain forms);
+* curly quotes and primes become ``'`` or ``"``; hyphen and minus variants
+  become ``-``; en and em dashes become ``,`` (a clause break, so
+  "queue—awful" is two words and ends a negation scope);
+* odd white space and control characters become spaces;
+* lower case (``str.lower``).
+
+Tokens
+------
+* words with inner apostrophes or hyphens stay whole: ``don't``,
+  ``self-service``, ``wi-fi``;
+* numbers keep their decimal or time separators: ``3.50``, ``10:30``;
+* currency signs and emoji are tokens of their own;
+* clause punctuation (``. , ; : ! ? ( ) [ ] "`` and lone dashes) are *break*
+  tokens: they end negation scopes and are never part of a phrase.
+
+Negation
+--------
+A cue (``not``, ``no``, ``never``, ``without``, ``nothing``, any ``n't``
+word...) opens a scope over the next ``window`` tokens (default 4), closed
+early by a break token or a contrast word (``but``, ``however``...).
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from functools import lru_cache
+from importlib import resources
+
+import numpy as np
+
+#: Separator placed between documents in the joined corpus; never a token.
+DOCUMENT_SEPARATOR = "\x1e"
+
+_WORD = r"[^\W_]+(?:['\-][^\W_]+)*"
+_NUMBER = r"\d+(?:[.,:]\d+)+"
+_CURRENCY = r"[$€£¥₹]"
+_EMOJI = r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF](?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*"
+_BREAK = r"[.!?;:,()\[\]\"]|-+"
+#: The one tokeniser pattern; documents and lexicon terms both go through it.
+TOKEN_PATTERN = re.compile(
+    f"{_NUMBER}|{_WORD}|{_CURRENCY}|{_EMOJI}|{_BREAK}|{DOCUMENT_SEPARATOR}"
+)
+_BREAK_PATTERN = re.compile(f"(?:{_BREAK})\\Z")
+
+#: Tokens that open a negation scope (a token ending in "n't" does too).
+NEGATION_CUES = frozenset(
+    "not no never without nothing none nobody nowhere neither nor cannot "
+    "cant dont didnt doesnt isnt wasnt arent werent couldnt wouldnt shouldnt "
+    "wont hasnt havent hadnt lack lacked lacking".split()
+)
+#: Words that close a negation scope as punctuation does.
+CONTRAST_WORDS = frozenset("but however although though yet except".split())
+
+_DASHES_TO_BREAK = "\u2013\u2014\u2015\u2E3A\u2E3B"
+_HYPHENS = "\u2010\u2011\u2012\u2212\uFE63\uFF0D"
+_SINGLE_QUOTES = "\u2018\u2019\u201A\u201B\u2032\u02BC\u0060\u00B4"
+_DOUBLE_QUOTES = "\u201C\u201D\u201E\u201F\u2033\u00AB\u00BB"
+_SPACES = "\u00A0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200A\u200B\u2028\u2029\u202F\u205F\u3000\uFEFF"
+
+
+def _build_table() -> dict[int, str]:
+    table: dict[int, str] = {}
+    for chars, target in ((_DASHES_TO_BREAK, ","), (_HYPHENS, "-"), (_SINGLE_QUOTES, "'"),
+                          (_DOUBLE_QUOTES, '"'), (_SPACES, " ")):
+        table.update({ord(c): target for c in chars})
+    for code in list(range(0x00, 0x20)) + [0x7F]:
+        table[code] = " "
+    return table
+
+
+_TABLE = _build_table()
+
+
+def normalise(text: str) -> str:
+    """Normalised, lower-cased form of ``text`` that the tokeniser reads.
+
+    For ASCII text this is ``text.lower()`` with control characters as spaces.
+    """
+    return normalise_with_offsets(text)[0]
+
+
+def normalise_with_offsets(text: str) -> tuple[str, np.ndarray | None]:
+    """Normalise ``text`` and map each normalised character back to ``text``.
+
+    Returns
+    -------
+    normalised : str
+    origin : ndarray of shape (len(normalised) + 1,) or None
+        ``origin[j]`` is the index in ``text`` where normalised character ``j``
+        comes from; the last entry is ``len(text)``. ``None`` means the
+        identity (every character maps to itself), the common case.
+    """
+    translated = text.translate(_TABLE)
+    lowered = translated.lower()
+    if len(lowered) == len(text) and unicodedata.is_normalized("NFKC", translated):
+        return lowered, None
+    # Normalise base character + combining marks as one segment, so each output
+    # character knows which input segment it came from.
+    pieces: list[str] = []
+    origin: list[int] = []
+    start = 0
+    for index in range(1, len(translated) + 1):
+        if index < len(translated) and unicodedata.combining(translated[index]):
+            continue
+        piece = unicodedata.normalize("NFKC", translated[start:index]).lower()
+        pieces.append(piece)
+        origin.extend([start] * len(piece))
+        start = index
+    origin.append(len(text))
+    return "".join(pieces), np.asarray(origin, dtype=np.int64)
+
+
+def is_break_token(token: str) -> bool:
+    """True for clause punctuation tokens (they end scopes and phrases)."""
+    return bool(_BREAK_PATTERN.match(token))
+
+
+def is_negation_cue(token: str) -> bool:
+    """True if ``token`` opens a negation scope."""
+    return token in NEGATION_CUES or token.endswith("n't")
+
+
+def tokenize(text: str) -> list[str]:
+    """Tokens of one text (normalised), break tokens included."""
+    return TOKEN_PATTERN.findall(normalise(text))
+
+
+def word_tokens(text: str) -> list[str]:
+    """Tokens of one text without break tokens (as used for lexicon terms)."""
+    return [token for token in tokenize(text) if not is_break_token(token)]
+
+
+def token_spans(text: str) -> list[tuple[int, int]]:
+    """Character spans in the *original* ``text`` of each token of ``tokenize(text)``."""
+    normalised, origin = normalise_with_offsets(text)
+    spans = [match.span() for match in TOKEN_PATTERN.finditer(normalised)]
+    if origin is None:
+        return spans
+    return [(int(origin[start]), int(origin[end])) for start, end in spans]
+
+
+@lru_cache(maxsize=1)
+def default_stop_words() -> frozenset[str]:
+    """The English stop-word list shipped in ``textkit/data`` (negations kept out)."""
+    raw = resources.files("textkit").joinpath("data/stopwords-en.txt").read_text(encoding="utf-8")
+    return frozenset(line.strip() for line in raw.splitlines()
+                     if line.strip() and not line.startswith("#"))
+
+
+@dataclass(frozen=True, eq=False)
+class TokenStream:
+    """A tokenised corpus.
+
+    Attributes
+    ----------
+    codes : ndarray of shape (n_tokens,), int32
+        Index of each token in ``vocabulary``; documents follow one another.
+    doc_offsets : ndarray of shape (n_documents + 1,), int64
+        Tokens of document ``i`` are ``codes[doc_offsets[i]:doc_offsets[i + 1]]``.
+    vocabulary : ndarray of shape (n_vocabulary,), object
+        Distinct tokens, sorted.
+    """
+
+    codes: np.ndarray
+    doc_offsets: np.ndarray
+    vocabulary: np.ndarray
+
+    @property
+    def n_documents(self) -> int:
+        return len(self.doc_offsets) - 1
+
+    @property
+    def n_tokens(self) -> int:
+        return len(self.codes)
+
+    def document_index(self) -> np.ndarray:
+        """Document number of every token, shape (n_tokens,), int32."""
+        lengths = np.diff(self.doc_offsets)
+        return np.repeat(np.arange(self.n_documents, dtype=np.int32), lengths)
+
+    def position_in_document(self) -> np.ndarray:
+        """0-based position of every token within its document, shape (n_tokens,)."""
+        return np.arange(self.n_tokens, dtype=np.int64) - np.repeat(
+            self.doc_offsets[:-1], np.diff(self.doc_offsets))
+
+    def vocabulary_flags(self, predicate) -> np.ndarray:
+        """Boolean array over the vocabulary, ``predicate(token)`` per entry."""
+        return np.fromiter((bool(predicate(token)) for token in self.vocabulary),
+                           dtype=bool, count=len(self.vocabulary))
+
+    def break_mask(self) -> np.ndarray:
+        """Per token: is it a break token? shape (n_tokens,), bool."""
+        return self.vocabulary_flags(is_break_token)[self.codes]
+
+    def negated_mask(self, window: int = 4) -> np.ndarray:
+        """Per token: does it lie inside a negation scope? shape (n_tokens,), bool.
+
+        A token is negated when a cue stands at most ``window`` tokens before
+        it in the same document with no break token or contrast word between.
+        The cue itself is not negated.
+        """
+        cue = self.vocabulary_flags(is_negation_cue)[self.codes]
+        stop = self.vocabulary_flags(lambda t: is_break_token(t) or t in CONTRAST_WORDS)[self.codes]
+        positions = np.arange(self.n_tokens, dtype=np.int64)
+        starts = np.zeros(self.n_tokens, dtype=bool)
+        starts[self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]] = True
+        last_cue = np.maximum.accumulate(np.where(cue, positions, -1))
+        last_stop = np.maximum.accumulate(np.where(stop | starts, positions, -1))
+        return (last_cue >= last_stop) & (last_cue >= 0) & (positions - last_cue <= window) & ~cue & ~stop
+
+
+def prepare_corpus(texts: Sequence[str | None]) -> str:
+    """Normalise every text and join them with :data:`DOCUMENT_SEPARATOR`.
+
+    Missing texts (None, NaN) are empty documents.
+    """
+    parts = []
+    for text in texts:
+        if not isinstance(text, str):
+            parts.append("")
+        elif text.isascii():
+            parts.append(text.lower())
+        else:
+            parts.append(normalise(text))
+    corpus = DOCUMENT_SEPARATOR.join(parts)
+    if corpus.count(DOCUMENT_SEPARATOR) != len(parts) - 1:  # a text held the separator itself
+        corpus = DOCUMENT_SEPARATOR.join(p.replace(DOCUMENT_SEPARATOR, " ") for p in parts)
+    return corpus
+
+
+def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None]) -> TokenStream:
+    """Tokenise all ``texts`` in one pass.
+
+    Parameters
+    ----------
+    texts : sequence of str or None, length n_documents
+
+    Returns
+    -------
+    TokenStream
+    """
+    texts = list(texts)
+    tokens = TOKEN_PATTERN.findall(prepare_corpus(texts))
+    index: dict[str, int] = {DOCUMENT_SEPARATOR: 0}
+    setdefault = index.setdefault
+    raw = np.array([setdefault(token, len(index)) for token in tokens], dtype=np.int32)
+    separator = raw == 0
+    doc_of_token = np.cumsum(separator, dtype=np.int64)
+    keep = ~separator
+    raw = raw[keep]
+    counts = np.bincount(doc_of_token[keep], minlength=len(texts)) if len(texts) else np.zeros(0, np.int64)
+    doc_offsets = np.zeros(len(texts) + 1, dtype=np.int64)
+    np.cumsum(counts, out=doc_offsets[1:])
+    first_seen = np.array(list(index), dtype=object)
+    order = np.argsort(first_seen[1:], kind="stable")  # sorted vocabulary, separator dropped
+    remap = np.empty(len(first_seen), dtype=np.int32)
+    remap[0] = -1
+    remap[1 + order] = np.arange(len(order), dtype=np.int32)
+    return TokenStream(codes=remap[raw], doc_offsets=doc_offsets, vocabulary=first_seen[1:][order])
+
+
+# --- redaction ------------------------------------------------------------------
+
+_EMAIL = re.compile(r"[\w.+-]+@[\w-]+(?:\.[\w-]+)+")
+_URL = re.compile(r"(?:https?://|www\.)\S+|\b[\w-]+(?:\.[\w-]+)*\.(?:com|net|org|info|io|co|uk|de|fr|nl|eu)(?:/\S*)?\b",
+                  re.IGNORECASE)
+_PHONE = re.compile(r"(?<![\w])(?:\+|00)?\d[\d ()./-]{6,}\d(?![\w])")
+_DIGIT_RUN = re.compile(r"\b[A-Z]{0,4}\d{6,}[A-Z]{0,4}\b", re.IGNORECASE)
+#: Placeholders written in place of redacted text.
+REDACTION_LABELS = {"email": "[email]", "url": "[link]", "phone": "[phone]", "number": "[number]"}
+
+
+def redact(text: str, names: Iterable[str] = ()) -> str:
+    """Replace contact details and identifiers in ``text`` before it is shown.
+
+    Removes e-mail addresses, web links, phone numbers, long digit runs such
+    as booking references (6+ digits, optionally with a short letter prefix),
+    and any of the given ``names`` (whole words, case-insensitive). This is a
+    safety net, not a guarantee: read quotes before publishing them.
+    """
+    if not isinstance(text, str):
+        return text
+    text = _EMAIL.sub(REDACTION_LABELS["email"], text)
+    text = _URL.sub(REDACTION_LABELS["url"], text)
+    text = _PHONE.sub(REDACTION_LABELS["phone"], text)
+    text = _DIGIT_RUN.sub(REDACTION_LABELS["number"], text)
+    words = [re.escape(name) for name in names if name and name.strip()]
+    if words:
+        text = re.sub(r"\b(?:" + "|".join(words) + r")\b", "[name]", text, flags=re.IGNORECASE)
+    return text
