@@ -172,11 +172,16 @@ class TokenStream:
         Tokens of document ``i`` are ``codes[doc_offsets[i]:doc_offsets[i + 1]]``.
     vocabulary : ndarray of shape (n_vocabulary,), object
         Distinct tokens, sorted.
+    starts, ends : ndarray of shape (n_tokens,), int32, or None
+        Character span of each token in its document's *original* text
+        (``text[starts[i]:ends[i]]``); None when built with ``offsets=False``.
     """
 
     codes: np.ndarray
     doc_offsets: np.ndarray
     vocabulary: np.ndarray
+    starts: np.ndarray | None = None
+    ends: np.ndarray | None = None
 
     @property
     def n_documents(self) -> int:
@@ -222,54 +227,95 @@ class TokenStream:
         return (last_cue >= last_stop) & (last_cue >= 0) & (positions - last_cue <= window) & ~cue & ~stop
 
 
-def prepare_corpus(texts: Sequence[str | None]) -> str:
+def prepare_corpus(texts: Sequence[str | None]) -> tuple[str, dict[int, np.ndarray]]:
     """Normalise every text and join them with :data:`DOCUMENT_SEPARATOR`.
 
     Missing texts (None, NaN) are empty documents.
+
+    Returns
+    -------
+    corpus : str
+    origins : dict of document number -> ndarray
+        For the (rare) documents whose normalisation moved characters, the map
+        from normalised to original character positions (see
+        :func:`normalise_with_offsets`).
     """
     parts = []
-    for text in texts:
+    origins: dict[int, np.ndarray] = {}
+    for number, text in enumerate(texts):
         if not isinstance(text, str):
             parts.append("")
         elif text.isascii():
             parts.append(text.lower())
         else:
-            parts.append(normalise(text))
+            normalised, origin = normalise_with_offsets(text)
+            parts.append(normalised)
+            if origin is not None:
+                origins[number] = origin
     corpus = DOCUMENT_SEPARATOR.join(parts)
     if corpus.count(DOCUMENT_SEPARATOR) != len(parts) - 1:  # a text held the separator itself
         corpus = DOCUMENT_SEPARATOR.join(p.replace(DOCUMENT_SEPARATOR, " ") for p in parts)
-    return corpus
+    return corpus, origins
 
 
-def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None]) -> TokenStream:
+_SPLIT_PATTERN = re.compile(f"({TOKEN_PATTERN.pattern})")
+
+
+def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None], *,
+                    offsets: bool = True) -> TokenStream:
     """Tokenise all ``texts`` in one pass.
 
     Parameters
     ----------
     texts : sequence of str or None, length n_documents
+    offsets : bool, default True
+        Also record each token's character span in its original text
+        (``TokenStream.starts`` / ``ends``), needed for evidence.
 
     Returns
     -------
     TokenStream
     """
     texts = list(texts)
-    tokens = TOKEN_PATTERN.findall(prepare_corpus(texts))
+    corpus, origins = prepare_corpus(texts)
+    if offsets:
+        pieces = _SPLIT_PATTERN.split(corpus)  # gap, token, gap, token, ..., gap
+        tokens = pieces[1::2]
+    else:
+        tokens = TOKEN_PATTERN.findall(corpus)
     index: dict[str, int] = {DOCUMENT_SEPARATOR: 0}
     setdefault = index.setdefault
     raw = np.array([setdefault(token, len(index)) for token in tokens], dtype=np.int32)
+    del tokens
     separator = raw == 0
     doc_of_token = np.cumsum(separator, dtype=np.int64)
     keep = ~separator
-    raw = raw[keep]
     counts = np.bincount(doc_of_token[keep], minlength=len(texts)) if len(texts) else np.zeros(0, np.int64)
     doc_offsets = np.zeros(len(texts) + 1, dtype=np.int64)
     np.cumsum(counts, out=doc_offsets[1:])
     first_seen = np.array(list(index), dtype=object)
+    starts = ends = None
+    if offsets:
+        gap_lengths = np.fromiter(map(len, pieces[0::2]), dtype=np.int64, count=len(raw) + 1)
+        del pieces
+        token_lengths = np.fromiter(map(len, first_seen), dtype=np.int64, count=len(first_seen))[raw]
+        corpus_starts = np.cumsum(gap_lengths[:-1]) + np.cumsum(token_lengths) - token_lengths
+        doc_starts = np.concatenate([[0], corpus_starts[separator] + 1])
+        starts = (corpus_starts - doc_starts[doc_of_token])[keep]
+        ends = starts + token_lengths[keep]
+        for number, origin in origins.items():
+            span = slice(doc_offsets[number], doc_offsets[number + 1])
+            starts[span] = origin[starts[span]]
+            ends[span] = origin[ends[span]]
+        starts = starts.astype(np.int32)
+        ends = ends.astype(np.int32)
+    raw = raw[keep]
     order = np.argsort(first_seen[1:], kind="stable")  # sorted vocabulary, separator dropped
     remap = np.empty(len(first_seen), dtype=np.int32)
     remap[0] = -1
     remap[1 + order] = np.arange(len(order), dtype=np.int32)
-    return TokenStream(codes=remap[raw], doc_offsets=doc_offsets, vocabulary=first_seen[1:][order])
+    return TokenStream(codes=remap[raw], doc_offsets=doc_offsets, vocabulary=first_seen[1:][order],
+                       starts=starts, ends=ends)
 
 
 # --- redaction ------------------------------------------------------------------

@@ -1,0 +1,410 @@
+"""Coding answers with a theme lexicon.
+
+:class:`ThemeCoder` follows the scikit-learn estimator contract: the
+constructor stores settings, :meth:`ThemeCoder.fit` compiles the lexicon
+against a vocabulary, :meth:`ThemeCoder.transform` returns the
+``(n_documents, n_themes)`` 0/1 matrix and :meth:`ThemeCoder.code` returns it
+together with hit counts and evidence.
+
+How a term matches
+------------------
+* Every distinct lexicon word becomes a *word pattern*: an exact word, a
+  prefix (``expens*``), or, when the term is inflection-insensitive, every
+  vocabulary word with the same Snowball stem (``queues`` ~ ``queue``).
+  Patterns are resolved once per vocabulary into a sparse
+  ``(n_vocabulary, n_patterns)`` matrix.
+* Token positions whose word matches any pattern are gathered in one sparse
+  row selection; a term's first word is joined to those positions with a
+  sparse product, and each further word of a phrase is checked with a sorted
+  key lookup at ``start + k``. Phrases never cross documents or break tokens
+  (punctuation), because break tokens match no pattern.
+* Within one theme, a match contained in a longer match of the same theme is
+  dropped ("long wait" wins over "wait"), so hit counts are not inflated.
+* A match whose first token lies in a negation scope (see
+  :mod:`textkit.text`) is dropped for themes with ``negated: drop``.
+* A match of a theme that overlaps a match of one of that theme's exclusion
+  phrases is vetoed ("free parking" vetoes a cost hit on "parking").
+* Parents: a child's hit counts for every ancestor (roll-up matrix).
+
+The vocabulary of ``transform`` documents is resolved afresh, so words first
+seen in a new wave (a new misspelling caught by a wildcard) still match;
+``fit`` records what the lexicon resolved to on the fitted documents
+(``term_table_``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from .lexicon import Lexicon
+from .text import TokenStream, tokenize_corpus
+
+_MAX_CODEPOINT = "\U0010ffff"
+
+
+@dataclass(frozen=True, eq=False)
+class CodingResult:
+    """What coding a set of documents produced.
+
+    Attributes
+    ----------
+    themes : tuple of str, length n_themes
+        Theme ids in lexicon order; columns of the matrices.
+    matrix : csr_matrix of shape (n_documents, n_themes), int8
+        1 where the document raises the theme (parents rolled up).
+    hits : csr_matrix of shape (n_documents, n_themes), int32
+        Number of counted matches per theme (a parent counts its children's).
+    evidence : DataFrame
+        One row per counted match: ``document`` (row number), ``theme`` (the
+        theme whose term matched; ancestors inherit it), ``term`` (as written
+        in the lexicon), ``start``, ``end`` (character span in the original
+        text) and ``matched_text``.
+    term_hits : Series
+        Counted matches per (theme, term), every lexicon term listed (zeros
+        included) - the input of the lexicon lint.
+    dropped : dict
+        Matches not counted: ``negated``, ``excluded``, ``contained``.
+    stream : TokenStream
+        The tokenised documents.
+    """
+
+    themes: tuple[str, ...]
+    matrix: sp.csr_matrix
+    hits: sp.csr_matrix
+    evidence: pd.DataFrame
+    term_hits: pd.Series
+    dropped: dict[str, int]
+    stream: TokenStream
+
+
+@dataclass(frozen=True, eq=False)
+class _CompiledLexicon:
+    """Lexicon flattened into arrays (terms then exclusions)."""
+
+    patterns: tuple[tuple[str, bool, bool], ...]  # (word, is_prefix, inflect)
+    term_patterns: np.ndarray  # (n_terms, max_words) pattern ids, -1 padded
+    term_lengths: np.ndarray  # (n_terms,)
+    term_theme: np.ndarray  # (n_terms,) theme index
+    term_is_exclusion: np.ndarray  # (n_terms,) bool
+    term_text: tuple[str, ...]
+    theme_drops_negated: np.ndarray  # (n_themes,) bool
+    rollup: sp.csr_matrix  # (n_themes, n_themes)
+
+
+def _compile(lexicon: Lexicon) -> _CompiledLexicon:
+    pattern_ids: dict[tuple[str, bool, bool], int] = {}
+    rows: list[list[int]] = []
+    themes: list[int] = []
+    exclusion: list[bool] = []
+    texts: list[str] = []
+    for theme_index, theme in enumerate(lexicon.themes):
+        for is_exclusion, terms in ((False, theme.terms), (True, theme.exclusions)):
+            for term in terms:
+                ids = []
+                for word in term.words:
+                    prefix = word.endswith("*")
+                    key = (word.rstrip("*"), prefix, bool(term.inflect) and not prefix)
+                    ids.append(pattern_ids.setdefault(key, len(pattern_ids)))
+                rows.append(ids)
+                themes.append(theme_index)
+                exclusion.append(is_exclusion)
+                texts.append(term.text)
+    width = max((len(r) for r in rows), default=1)
+    term_patterns = np.full((len(rows), width), -1, dtype=np.int64)
+    for index, ids in enumerate(rows):
+        term_patterns[index, : len(ids)] = ids
+    return _CompiledLexicon(
+        patterns=tuple(pattern_ids),
+        term_patterns=term_patterns,
+        term_lengths=np.array([len(r) for r in rows], dtype=np.int64),
+        term_theme=np.array(themes, dtype=np.int64),
+        term_is_exclusion=np.array(exclusion, dtype=bool),
+        term_text=tuple(texts),
+        theme_drops_negated=np.array([t.negated == "drop" for t in lexicon.themes], dtype=bool),
+        rollup=sp.csr_matrix(lexicon.rollup_matrix(), dtype=np.int32),
+    )
+
+
+def _stemmer():
+    from nltk.stem.snowball import SnowballStemmer  # imported late: nltk is slow to import
+
+    return SnowballStemmer("english")
+
+
+def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
+                      stem_cache: dict[str, str]) -> sp.csr_matrix:
+    """Sparse (n_vocabulary, n_patterns) bool: vocabulary word v matches pattern p."""
+    vocab = vocabulary.astype(str) if len(vocabulary) else np.zeros(0, dtype="<U1")
+    vocab_rows: list[np.ndarray] = []
+    pattern_cols: list[np.ndarray] = []
+    inflect_words: list[tuple[int, str]] = []
+    for pattern_id, (word, prefix, inflect) in enumerate(compiled.patterns):
+        low = np.searchsorted(vocab, word, side="left")
+        high = (np.searchsorted(vocab, word + _MAX_CODEPOINT, side="left") if prefix
+                else np.searchsorted(vocab, word, side="right"))
+        if high > low:
+            vocab_rows.append(np.arange(low, high))
+            pattern_cols.append(np.full(high - low, pattern_id))
+        if inflect:
+            inflect_words.append((pattern_id, word))
+    if inflect_words:
+        stem = None
+        stems_wanted: dict[str, list[int]] = {}
+        for pattern_id, word in inflect_words:
+            if word not in stem_cache:
+                stem = stem or _stemmer()
+                stem_cache[word] = stem.stem(word)
+            stems_wanted.setdefault(stem_cache[word], []).append(pattern_id)
+        # Only vocabulary words sharing a stem's first three letters can share the stem.
+        heads = sorted({s[:3] for s in stems_wanted})
+        candidates = np.unique(np.concatenate([
+            np.arange(np.searchsorted(vocab, h), np.searchsorted(vocab, h + _MAX_CODEPOINT)) for h in heads
+        ])) if heads else np.zeros(0, dtype=np.int64)
+        for index in candidates:
+            token = vocab[index]
+            if token not in stem_cache:
+                stem = stem or _stemmer()
+                stem_cache[token] = stem.stem(token)
+            for pattern_id in stems_wanted.get(stem_cache[token], ()):
+                vocab_rows.append(np.array([index]))
+                pattern_cols.append(np.array([pattern_id]))
+    if vocab_rows:
+        rows = np.concatenate(vocab_rows)
+        cols = np.concatenate(pattern_cols)
+    else:
+        rows = cols = np.zeros(0, dtype=np.int64)
+    matrix = sp.csr_matrix((np.ones(len(rows), dtype=bool), (rows, cols)),
+                           shape=(len(vocabulary), len(compiled.patterns)), dtype=bool)
+    matrix.sum_duplicates()
+    return matrix
+
+
+def _match_terms(stream: TokenStream, compiled: _CompiledLexicon,
+                 pattern_matrix: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
+    """All term matches: (start token position, term id), each shape (n_matches,)."""
+    n_patterns = max(len(compiled.patterns), 1)
+    useful = np.diff(pattern_matrix.indptr) > 0
+    positions = np.flatnonzero(useful[stream.codes])
+    occurrences = pattern_matrix[stream.codes[positions]].tocoo()
+    occurrence_position = positions[occurrences.row]
+    occurrence_pattern = occurrences.col.astype(np.int64)
+    keys = np.sort(occurrence_position * n_patterns + occurrence_pattern)
+
+    n_terms = len(compiled.term_lengths)
+    first = sp.csr_matrix((np.ones(n_terms, dtype=np.int8),
+                           (compiled.term_patterns[:, 0], np.arange(n_terms))),
+                          shape=(n_patterns, n_terms))
+    candidates = first[occurrence_pattern].tocoo()
+    start = occurrence_position[candidates.row]
+    term = candidates.col.astype(np.int64)
+    length = compiled.term_lengths[term]
+    if len(start) and length.max() > 1:
+        document = np.searchsorted(stream.doc_offsets, start, side="right") - 1
+        fits = start + length <= stream.doc_offsets[document + 1]
+        start, term, length = start[fits], term[fits], length[fits]
+        for k in range(1, compiled.term_patterns.shape[1]):
+            longer = length > k
+            wanted = (start[longer] + k) * n_patterns + compiled.term_patterns[term[longer], k]
+            found = np.searchsorted(keys, wanted)
+            found = np.minimum(found, len(keys) - 1)
+            present = keys[found] == wanted if len(keys) else np.zeros(len(wanted), bool)
+            keep = np.ones(len(start), dtype=bool)
+            keep[np.flatnonzero(longer)[~present]] = False
+            start, term, length = start[keep], term[keep], length[keep]
+    order = np.lexsort((term, start))
+    return start[order], term[order]
+
+
+def _covers(key_theme: np.ndarray, key_start: np.ndarray, key_length: np.ndarray, n_tokens: int,
+            query_theme: np.ndarray, query_start: np.ndarray, query_length: np.ndarray) -> np.ndarray:
+    """For each query span: does any key span of the same theme overlap it?"""
+    if len(key_start) == 0 or len(query_start) == 0:
+        return np.zeros(len(query_start), dtype=bool)
+    width = int(key_length.max())
+    covered = np.concatenate([
+        key_theme[key_length > j] * (n_tokens + 1) + key_start[key_length > j] + j for j in range(width)
+    ])
+    covered = np.unique(covered)
+    hit = np.zeros(len(query_start), dtype=bool)
+    for j in range(int(query_length.max())):
+        inside = query_length > j
+        wanted = query_theme[inside] * (n_tokens + 1) + query_start[inside] + j
+        found = np.minimum(np.searchsorted(covered, wanted), len(covered) - 1)
+        hit[np.flatnonzero(inside)[covered[found] == wanted]] = True
+    return hit
+
+
+def _contained(theme: np.ndarray, start: np.ndarray, length: np.ndarray, n_tokens: int) -> np.ndarray:
+    """True for matches lying inside a longer match of the same theme (or duplicating one)."""
+    end = start + length
+    stride = n_tokens + 1
+    key = theme * stride + start
+    unique_keys, inverse = np.unique(key, return_inverse=True)
+    longest_end = np.full(len(unique_keys), -1, dtype=np.int64)
+    np.maximum.at(longest_end, inverse, end)
+    contained = longest_end[inverse] > end  # a longer match starts at the same token
+    for back in range(1, int(length.max(initial=1))):
+        wanted = key - back
+        found = np.minimum(np.searchsorted(unique_keys, wanted), len(unique_keys) - 1)
+        same = (unique_keys[found] == wanted) & (start - back >= 0)
+        contained |= same & (longest_end[found] >= end)
+    # identical spans of one theme (e.g. "queue" and "queu*"): keep the first term only
+    span_key = np.stack([theme, start, end], axis=1)
+    _, first_index = np.unique(span_key, axis=0, return_index=True)
+    duplicate = np.ones(len(start), dtype=bool)
+    duplicate[first_index] = False
+    return contained | duplicate
+
+
+class ThemeCoder:
+    """Code documents with a theme lexicon.
+
+    Parameters
+    ----------
+    lexicon : Lexicon
+        The theme lexicon (see :func:`textkit.lexicon.load_lexicon`).
+    negation_window : int or None, default None
+        Tokens after a negation cue that count as negated; None takes the
+        lexicon's ``settings.negation_window``.
+
+    Attributes
+    ----------
+    themes_ : tuple of str, length n_themes
+        Theme ids, the columns of the output.
+    vocabulary_ : ndarray of shape (n_vocabulary,)
+        Sorted vocabulary of the fitted documents.
+    term_table_ : DataFrame
+        Per lexicon term: ``theme``, ``term``, ``exclusion``, ``words`` and
+        ``vocabulary_matches`` (how many fitted vocabulary words each of its
+        word patterns matched, summed) - to spot wildcards that match nothing
+        or far too much.
+    """
+
+    def __init__(self, lexicon: Lexicon, *, negation_window: int | None = None) -> None:
+        self.lexicon = lexicon
+        self.negation_window = negation_window
+
+    # scikit-learn conventions -------------------------------------------------
+    def get_params(self, deep: bool = True) -> dict:
+        return {"lexicon": self.lexicon, "negation_window": self.negation_window}
+
+    def set_params(self, **params) -> ThemeCoder:
+        for key, value in params.items():
+            setattr(self, key, value)
+        return self
+
+    def fit(self, documents: Sequence[str | None] | TokenStream, y=None) -> ThemeCoder:
+        """Compile the lexicon against the vocabulary of ``documents``."""
+        stream = documents if isinstance(documents, TokenStream) else tokenize_corpus(documents, offsets=False)
+        self._compiled = _compile(self.lexicon)
+        self._stem_cache: dict[str, str] = {}
+        pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._stem_cache)
+        per_pattern = np.asarray(pattern_matrix.sum(axis=0)).ravel()
+        compiled = self._compiled
+        matches = [int(per_pattern[ids[ids >= 0]].sum()) for ids in compiled.term_patterns]
+        self.term_table_ = pd.DataFrame({
+            "theme": [self.lexicon.themes[i].id for i in compiled.term_theme],
+            "term": compiled.term_text,
+            "exclusion": compiled.term_is_exclusion,
+            "words": compiled.term_lengths,
+            "vocabulary_matches": matches,
+        })
+        self.themes_ = tuple(self.lexicon.ids)
+        self.vocabulary_ = stream.vocabulary
+        return self
+
+    def transform(self, documents: Sequence[str | None] | TokenStream) -> sp.csr_matrix:
+        """The (n_documents, n_themes) int8 0/1 theme matrix, parents rolled up."""
+        return self.code(documents, evidence=False).matrix
+
+    def fit_transform(self, documents, y=None) -> sp.csr_matrix:
+        return self.fit(documents).transform(documents)
+
+    def code(self, documents: Sequence[str | None] | TokenStream, *, evidence: bool = True,
+             texts: Sequence[str | None] | None = None) -> CodingResult:
+        """Code documents and keep the evidence.
+
+        Parameters
+        ----------
+        documents : sequence of str (None for missing) or TokenStream
+        evidence : bool, default True
+            Build the evidence table (needs token offsets and the texts).
+        texts : sequence of str, optional
+            The original texts when ``documents`` is a TokenStream (for
+            ``matched_text``).
+        """
+        if not hasattr(self, "_compiled"):
+            raise RuntimeError("ThemeCoder is not fitted yet: call fit(documents) first")
+        if isinstance(documents, TokenStream):
+            stream = documents
+        else:
+            texts = list(documents)
+            stream = tokenize_corpus(texts, offsets=evidence)
+        compiled = self._compiled
+        n_themes = len(self.lexicon.themes)
+        pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache)
+        start, term = _match_terms(stream, compiled, pattern_matrix)
+        theme = compiled.term_theme[term]
+        length = compiled.term_lengths[term]
+        is_exclusion = compiled.term_is_exclusion[term]
+
+        ex_theme, ex_start, ex_length = theme[is_exclusion], start[is_exclusion], length[is_exclusion]
+        start, term, theme, length = (a[~is_exclusion] for a in (start, term, theme, length))
+        n = stream.n_tokens
+        window = self.negation_window if self.negation_window is not None else self.lexicon.negation_window
+        negated = stream.negated_mask(window)[start] & compiled.theme_drops_negated[theme]
+        excluded = _covers(ex_theme, ex_start, ex_length, n, theme, start, length) & ~negated
+        contained = np.zeros(len(start), dtype=bool)
+        alive = ~(negated | excluded)
+        if alive.any():
+            contained[alive] = _contained(theme[alive], start[alive], length[alive], n)
+        keep = alive & ~contained
+        dropped = {"negated": int(negated.sum()), "excluded": int(excluded.sum()),
+                   "contained": int(contained.sum())}
+        start, term, theme, length = (a[keep] for a in (start, term, theme, length))
+
+        document = (np.searchsorted(stream.doc_offsets, start, side="right") - 1).astype(np.int64)
+        direct = sp.csr_matrix((np.ones(len(start), dtype=np.int32), (document, theme)),
+                               shape=(stream.n_documents, n_themes))
+        direct.sum_duplicates()
+        hits = (direct @ compiled.rollup).tocsr()
+        matrix = hits.copy()
+        matrix.data = (matrix.data > 0).astype(np.int8)
+        matrix.eliminate_zeros()
+
+        term_counts = np.bincount(term, minlength=len(compiled.term_lengths))
+        mask = ~compiled.term_is_exclusion
+        index = pd.MultiIndex.from_arrays(
+            [[self.lexicon.themes[i].id for i in compiled.term_theme[mask]],
+             np.asarray(compiled.term_text, dtype=object)[mask]], names=["theme", "term"])
+        term_hits = pd.Series(term_counts[mask], index=index, name="hits")
+        table = self._evidence(stream, texts, document, theme, term, start, length) if evidence \
+            else pd.DataFrame(columns=["document", "theme", "term", "start", "end", "matched_text"])
+        return CodingResult(themes=tuple(self.lexicon.ids), matrix=matrix, hits=hits.astype(np.int32),
+                            evidence=table, term_hits=term_hits, dropped=dropped, stream=stream)
+
+    def _evidence(self, stream: TokenStream, texts, document, theme, term, start, length) -> pd.DataFrame:
+        if stream.starts is None:
+            raise ValueError("evidence needs token offsets: tokenise with offsets=True")
+        char_start = stream.starts[start].astype(np.int64)
+        char_end = stream.ends[start + length - 1].astype(np.int64)
+        ids = np.asarray(self.lexicon.ids, dtype=object)
+        if texts is not None:
+            matched = [texts[d][s:e] for d, s, e in zip(document.tolist(), char_start.tolist(),
+                                                        char_end.tolist(), strict=True)]
+        else:
+            matched = [None] * len(document)
+        frame = pd.DataFrame({
+            "document": document,
+            "theme": ids[theme],
+            "term": np.asarray(self._compiled.term_text, dtype=object)[term],
+            "start": char_start,
+            "end": char_end,
+            "matched_text": matched,
+        })
+        return frame.sort_values(["document", "start", "theme"], kind="stable").reset_index(drop=True)
