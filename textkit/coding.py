@@ -59,6 +59,8 @@ class CodingResult:
         1 where the document raises the theme (parents rolled up).
     hits : csr_matrix of shape (n_documents, n_themes), int32
         Number of counted matches per theme (a parent counts its children's).
+    direct : csr_matrix of shape (n_documents, n_themes), int32
+        Matches of each theme's own terms, before the roll-up to parents.
     evidence : DataFrame
         One row per counted match: ``document`` (row number), ``theme`` (the
         theme whose term matched; ancestors inherit it), ``term`` (as written
@@ -76,6 +78,7 @@ class CodingResult:
     themes: tuple[str, ...]
     matrix: sp.csr_matrix
     hits: sp.csr_matrix
+    direct: sp.csr_matrix
     evidence: pd.DataFrame
     term_hits: pd.Series
     dropped: dict[str, int]
@@ -92,8 +95,25 @@ class _CompiledLexicon:
     term_theme: np.ndarray  # (n_terms,) theme index
     term_is_exclusion: np.ndarray  # (n_terms,) bool
     term_text: tuple[str, ...]
+    term_source: np.ndarray  # (n_terms,) index of the lexicon term a spelling row comes from
     theme_drops_negated: np.ndarray  # (n_themes,) bool
     rollup: sp.csr_matrix  # (n_themes, n_themes)
+
+
+def _spellings(words: tuple[str, ...]) -> list[tuple[str, ...]]:
+    """A term's word sequence plus its hyphen variants.
+
+    "rip off" also matches the single token "rip-off", and "self-service"
+    also matches "self service" (wildcard terms are left as written).
+    """
+    spellings = [words]
+    if any(word.endswith("*") for word in words):
+        return spellings
+    if len(words) > 1:
+        spellings.append(("-".join(words),))
+    elif "-" in words[0]:
+        spellings.append(tuple(part for part in words[0].split("-") if part))
+    return spellings
 
 
 def _compile(lexicon: Lexicon) -> _CompiledLexicon:
@@ -102,18 +122,23 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
     themes: list[int] = []
     exclusion: list[bool] = []
     texts: list[str] = []
+    sources: list[int] = []
+    n_sources = 0
     for theme_index, theme in enumerate(lexicon.themes):
         for is_exclusion, terms in ((False, theme.terms), (True, theme.exclusions)):
             for term in terms:
-                ids = []
-                for word in term.words:
-                    prefix = word.endswith("*")
-                    key = (word.rstrip("*"), prefix, bool(term.inflect) and not prefix)
-                    ids.append(pattern_ids.setdefault(key, len(pattern_ids)))
-                rows.append(ids)
-                themes.append(theme_index)
-                exclusion.append(is_exclusion)
-                texts.append(term.text)
+                for words in _spellings(term.words):
+                    ids = []
+                    for word in words:
+                        prefix = word.endswith("*")
+                        key = (word.rstrip("*"), prefix, bool(term.inflect) and not prefix)
+                        ids.append(pattern_ids.setdefault(key, len(pattern_ids)))
+                    rows.append(ids)
+                    themes.append(theme_index)
+                    exclusion.append(is_exclusion)
+                    texts.append(term.text)
+                    sources.append(n_sources)
+                n_sources += 1
     width = max((len(r) for r in rows), default=1)
     term_patterns = np.full((len(rows), width), -1, dtype=np.int64)
     for index, ids in enumerate(rows):
@@ -125,6 +150,7 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
         term_theme=np.array(themes, dtype=np.int64),
         term_is_exclusion=np.array(exclusion, dtype=bool),
         term_text=tuple(texts),
+        term_source=np.array(sources, dtype=np.int64),
         theme_drops_negated=np.array([t.negated == "drop" for t in lexicon.themes], dtype=bool),
         rollup=sp.csr_matrix(lexicon.rollup_matrix(), dtype=np.int32),
     )
@@ -307,13 +333,19 @@ class ThemeCoder:
         per_pattern = np.asarray(pattern_matrix.sum(axis=0)).ravel()
         compiled = self._compiled
         matches = [int(per_pattern[ids[ids >= 0]].sum()) for ids in compiled.term_patterns]
-        self.term_table_ = pd.DataFrame({
+        table = pd.DataFrame({
+            "source": compiled.term_source,
             "theme": [self.lexicon.themes[i].id for i in compiled.term_theme],
             "term": compiled.term_text,
             "exclusion": compiled.term_is_exclusion,
             "words": compiled.term_lengths,
             "vocabulary_matches": matches,
         })
+        self.term_table_ = (table.groupby("source", sort=True)
+                            .agg(theme=("theme", "first"), term=("term", "first"),
+                                 exclusion=("exclusion", "first"), words=("words", "first"),
+                                 vocabulary_matches=("vocabulary_matches", "sum"))
+                            .reset_index(drop=True))
         self.themes_ = tuple(self.lexicon.ids)
         self.vocabulary_ = stream.vocabulary
         return self
@@ -377,15 +409,18 @@ class ThemeCoder:
         matrix.data = (matrix.data > 0).astype(np.int8)
         matrix.eliminate_zeros()
 
-        term_counts = np.bincount(term, minlength=len(compiled.term_lengths))
-        mask = ~compiled.term_is_exclusion
+        n_sources = int(compiled.term_source.max(initial=-1)) + 1
+        term_counts = np.bincount(compiled.term_source[term], minlength=n_sources)
+        _, first_row = np.unique(compiled.term_source, return_index=True)
+        mask = ~compiled.term_is_exclusion[first_row]
         index = pd.MultiIndex.from_arrays(
-            [[self.lexicon.themes[i].id for i in compiled.term_theme[mask]],
-             np.asarray(compiled.term_text, dtype=object)[mask]], names=["theme", "term"])
+            [[self.lexicon.themes[i].id for i in compiled.term_theme[first_row][mask]],
+             np.asarray(compiled.term_text, dtype=object)[first_row][mask]], names=["theme", "term"])
         term_hits = pd.Series(term_counts[mask], index=index, name="hits")
         table = self._evidence(stream, texts, document, theme, term, start, length) if evidence \
             else pd.DataFrame(columns=["document", "theme", "term", "start", "end", "matched_text"])
         return CodingResult(themes=tuple(self.lexicon.ids), matrix=matrix, hits=hits.astype(np.int32),
+                            direct=direct,
                             evidence=table, term_hits=term_hits, dropped=dropped, stream=stream)
 
     def _evidence(self, stream: TokenStream, texts, document, theme, term, start, length) -> pd.DataFrame:

@@ -1,0 +1,181 @@
+"""Command line: a thin face over the Python API.
+
+Each command parses its options, calls public functions and prints a short
+summary. Any :class:`textkit.errors.TextkitError` becomes one line on stderr
+and exit status 2. Heavy libraries are imported inside the commands, so
+``textkit --help`` starts fast.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.util
+import sys
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+import click
+
+from .errors import TextkitError
+
+#: Commands kept in their own modules, loaded when first needed.
+_LAZY_COMMANDS = {
+    "prevalence": "textkit.cli_stats:prevalence_command",
+    "keyness": "textkit.cli_keyness:keyness_command",
+    "suggest": "textkit.cli_keyness:suggest_command",
+}
+
+
+class _Commands(click.Group):
+    """A group that imports the modules of some commands only when they are used."""
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return sorted(set(super().list_commands(ctx)) | set(self._available()))
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        command = super().get_command(ctx, name)
+        if command is not None or name not in self._available():
+            return command
+        module, attribute = _LAZY_COMMANDS[name].split(":")
+        return getattr(importlib.import_module(module), attribute)
+
+    @staticmethod
+    def _available() -> list[str]:
+        found = []
+        for name, target in _LAZY_COMMANDS.items():
+            module = target.split(":")[0]
+            if importlib.util.find_spec(module) is not None:
+                found.append(name)
+        return found
+
+
+@contextmanager
+def steps(total: int, quiet: bool) -> Iterator[Callable[[str], None]]:
+    """A progress bar over named steps (on stderr; nothing when ``quiet``)."""
+    if quiet:
+        yield lambda name: None
+        return
+    from tqdm import tqdm
+
+    bar = tqdm(total=total, file=sys.stderr, leave=False, bar_format="{desc:<22} {bar} {n}/{total}")
+    started = False
+
+    def advance(name: str) -> None:
+        nonlocal started
+        if started:
+            bar.update(1)
+        started = True
+        bar.set_description_str(name)
+
+    try:
+        yield advance
+        bar.update(bar.total - bar.n)
+    finally:
+        bar.close()
+
+
+@click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(package_name="textkit")
+def cli() -> None:
+    """Code, count and compare the free-text answers of visitor surveys.
+
+    Start with `textkit code SURVEY.yaml --out DIR` to code every answer with the
+    survey's theme lexicon, then estimate prevalence and keyness from the result.
+    """
+
+
+@cli.command("code")
+@click.argument("config", type=click.Path(path_type=Path))
+@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+              help="Folder for coded.csv, coded.parquet, evidence.csv, coverage.csv, manifest.json.")
+@click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
+              help="Use this lexicon instead of the one the config names.")
+@click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
+def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: bool) -> None:
+    """Code every answer of the survey described by CONFIG with its theme lexicon."""
+    from .pipeline import code_survey, write_coded
+
+    with steps(6, quiet) as progress:
+        survey = code_survey(config, lexicon=lexicon_path, progress=progress)
+        progress("writing")
+        paths = write_coded(survey, out_dir)
+    if quiet:
+        return
+    for note in survey.notes:
+        click.echo(f"note: {note}", err=True)
+    counts = survey.manifest["counts"]
+    click.echo(f"coded {counts['rows']:,} answers ({counts['responses']:,} responses x "
+               f"{len(survey.config.questions)} questions; {counts['answered']:,} answered) "
+               f"with {len(survey.themes)} themes of '{survey.lexicon.name}'")
+    coverage = survey.coverage
+    for question, rows in coverage.groupby("question", sort=False):
+        uncoded = rows.loc[rows["theme"] == "(uncoded)", "share"].iloc[0]
+        top = rows[rows["theme"] != "(uncoded)"].nlargest(3, "weighted_share")
+        listed = ", ".join(f"{r.theme} {r.weighted_share:.0%}" for r in top.itertuples())
+        click.echo(f"  {question}: top themes {listed}; answered but uncoded {uncoded:.0%}")
+    click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir}")
+    click.echo("caution: automated coding is an estimate - check the lexicon against a hand-coded "
+               "sample before reporting.")
+
+
+@cli.group("lexicon")
+def lexicon_group() -> None:
+    """Check and inspect theme lexicons."""
+
+
+@lexicon_group.command("check")
+@click.argument("lexicon", type=click.Path(path_type=Path))
+@click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
+              help="Also code this survey and list terms that never matched and themes with no hits.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> None:
+    """Validate LEXICON and print its lint report."""
+    from .errors import LexiconError
+    from .lexicon import format_lint, lint_lexicon, load_lexicon
+
+    try:
+        lex = load_lexicon(lexicon)
+    except LexiconError as error:
+        problems = getattr(error, "problems", None) or []
+        for line, message in problems[1:]:
+            where = f"{error.source}:{line}" if line else str(error.source)
+            click.echo(f"{where}: {message}", err=True)
+        raise
+    term_hits = theme_hits = None
+    if config is not None:
+        from .pipeline import code_survey
+
+        with steps(5, quiet) as progress:
+            survey = code_survey(config, lexicon=lex, progress=progress)
+        term_hits = survey.result.term_hits.to_dict()
+        theme_hits = dict(zip(survey.themes, map(int, survey.theme_matrix.sum(axis=0).A1), strict=True))
+    n_terms = sum(len(t.terms) for t in lex.themes)
+    click.echo(f"{lexicon}: valid - {len(lex.themes)} themes, {n_terms} terms (sha256 {lex.sha256[:12]})")
+    click.echo(format_lint(lint_lexicon(lex, term_hits=term_hits, theme_hits=theme_hits)))
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``textkit`` console script."""
+    try:
+        cli.main(args=argv, prog_name="textkit", standalone_mode=False)
+    except TextkitError as error:
+        click.echo(f"textkit: error: {error}", err=True)
+        return 2
+    except OSError as error:  # a disk full or a folder we may not write: still one line
+        where = f"{error.filename}: " if error.filename else ""
+        click.echo(f"textkit: error: {where}{error.strerror or error}", err=True)
+        return 2
+    except click.exceptions.Abort:
+        click.echo("textkit: aborted", err=True)
+        return 130
+    except click.ClickException as error:
+        error.show()
+        return 2
+    except click.exceptions.Exit as exit_request:
+        return exit_request.exit_code
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,250 @@
+"""The coding job end to end: survey config -> coded table, evidence, coverage.
+
+:func:`code_survey` is what ``textkit code`` runs; it returns a
+:class:`CodedSurvey` that notebooks and the later stages (prevalence,
+keyness) use directly. :func:`write_coded` writes it atomically.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from .coding import CodingResult, ThemeCoder
+from .config import SurveyConfig, load_config
+from .lexicon import Lexicon, load_lexicon
+from .output import csv_writer, file_sha256, parquet_writer, write_outputs
+from .readers import SurveyData, answered_mask, read_survey
+from .text import TokenStream, redact, tokenize_corpus
+from .errors import InputError
+
+#: Columns of ``evidence.csv``.
+EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "matched_text"]
+#: Columns of ``coverage.csv``.
+COVERAGE_COLUMNS = ["question", "theme", "label", "parent", "responses_coded", "answered", "share",
+                    "weighted_share"]
+
+
+@dataclass(frozen=True, eq=False)
+class CodedSurvey:
+    """A coded survey wave (or waves).
+
+    Attributes
+    ----------
+    coded : DataFrame
+        One row per response x question (response order, then question order):
+        ``response_id``, ``question``, the design/wave/group columns under their
+        own names, ``answered`` (0/1), one 0/1 column per theme id (parents rolled
+        up), ``n_themes`` (distinct themes whose own terms matched: a parent
+        reached only through its child is not counted again) and ``uncoded`` (1 when answered but no theme matched).
+    texts : Series
+        The answer texts aligned with ``coded`` rows (non-answers as None).
+    theme_matrix : csr_matrix of shape (n_rows, n_themes), int8
+    evidence : DataFrame
+        ``EVIDENCE_COLUMNS``; ``matched_text`` is redacted.
+    coverage : DataFrame
+        ``COVERAGE_COLUMNS``: per question and theme, responses coded and their
+        unweighted and weighted share of the answered responses.
+    stream : TokenStream
+        Tokens of ``texts``.
+    themes : tuple of str
+    roles : dict
+        Which column plays which part (``SurveyConfig.roles()``).
+    lexicon : Lexicon
+    config : SurveyConfig
+    notes : list of str
+        Things the user should know (encoding fallbacks, zero weights...).
+    manifest : dict
+        Inputs' hashes and settings that reproduce the run.
+    """
+
+    coded: pd.DataFrame
+    texts: pd.Series
+    theme_matrix: sp.csr_matrix
+    evidence: pd.DataFrame
+    coverage: pd.DataFrame
+    stream: TokenStream
+    themes: tuple[str, ...]
+    roles: dict
+    lexicon: Lexicon
+    config: SurveyConfig
+    result: CodingResult
+    notes: list[str] = field(default_factory=list)
+    manifest: dict = field(default_factory=dict)
+
+
+def _no_progress(step: str) -> None:
+    return None
+
+
+def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
+                progress: Callable[[str], None] | None = None) -> CodedSurvey:
+    """Read a survey and code every answer of every open question.
+
+    Parameters
+    ----------
+    config : path or SurveyConfig
+        The survey config (YAML) or an already loaded one.
+    lexicon : path or Lexicon, optional
+        Overrides the config's ``lexicon``.
+    progress : callable, optional
+        Called with the name of each step as it starts (the CLI draws a bar).
+
+    Raises
+    ------
+    InputError, LexiconError
+        For any problem with the inputs, naming the file and place.
+    """
+    step = progress or _no_progress
+    step("reading survey")
+    config = config if isinstance(config, SurveyConfig) else load_config(config)
+    if lexicon is None:
+        if config.lexicon is None:
+            raise InputError("the config names no lexicon; add 'lexicon: <path>' or pass one",
+                             source=config.path)
+        lexicon = config.lexicon
+    data = read_survey(config)
+    step("loading lexicon")
+    lex = lexicon if isinstance(lexicon, Lexicon) else load_lexicon(lexicon)
+
+    step("tokenising")
+    frame = data.frame
+    n_responses = len(frame)
+    questions = list(config.questions)
+    n_questions = len(questions)
+    # response-major order: response 0 q1, response 0 q2, response 1 q1, ...
+    raw_texts = np.empty(n_responses * n_questions, dtype=object)
+    answered = np.zeros(n_responses * n_questions, dtype=bool)
+    for q_index, column in enumerate(config.questions.values()):
+        texts = frame[column]
+        mask = answered_mask(texts, config.non_answers)
+        values = texts.astype(object).where(pd.Series(mask, index=texts.index), None).to_numpy(dtype=object)
+        raw_texts[q_index::n_questions] = values
+        answered[q_index::n_questions] = mask
+    text_list = raw_texts.tolist()
+    stream = tokenize_corpus(text_list, offsets=True)
+
+    step("coding")
+    coder = ThemeCoder(lex).fit(stream)
+    result = coder.code(stream, texts=text_list)
+
+    step("assembling tables")
+    coded = _coded_table(frame, config, questions, answered, result)
+    evidence = _evidence_table(coded, result)
+    coverage = _coverage_table(coded, lex, config)
+    manifest = {
+        "command": "code",
+        "config": {"path": str(config.path), "sha256": file_sha256(config.path)},
+        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses},
+        "lexicon": {"path": lex.source, "sha256": lex.sha256, "name": lex.name, "version": lex.version},
+        "settings": {"negation_window": lex.negation_window, "seed": config.seed,
+                     "non_answers": list(config.non_answers)},
+        "roles": config.roles(),
+        "themes": list(lex.ids),
+        "counts": {"responses": n_responses, "rows": len(coded), "answered": int(answered.sum()),
+                   "evidence": len(evidence), "dropped_matches": result.dropped},
+        "notes": list(data.notes),
+    }
+    return CodedSurvey(coded=coded, texts=pd.Series(raw_texts, name="text"), theme_matrix=result.matrix,
+                       evidence=evidence, coverage=coverage, stream=stream, themes=tuple(lex.ids),
+                       roles=config.roles(), lexicon=lex, config=config, result=result,
+                       notes=list(data.notes), manifest=manifest)
+
+
+def _coded_table(frame: pd.DataFrame, config: SurveyConfig, questions: list[str], answered: np.ndarray,
+                 result: CodingResult) -> pd.DataFrame:
+    n_questions = len(questions)
+    repeat = np.repeat(np.arange(len(frame)), n_questions)
+    columns: dict[str, object] = {
+        "response_id": frame[config.id_column].astype(str).to_numpy()[repeat],
+        "question": np.tile(np.asarray(questions, dtype=object), len(frame)),
+    }
+    for column in config.design_columns():
+        if column not in columns:
+            columns[column] = frame[column].to_numpy()[repeat]
+    columns["answered"] = answered.astype(np.int8)
+    dense = result.matrix.toarray().astype(np.int8)
+    for index, theme in enumerate(result.themes):
+        columns[theme] = dense[:, index]
+    n_themes = np.diff(result.direct.indptr).astype(np.int16)
+    columns["n_themes"] = n_themes
+    columns["uncoded"] = (answered & (n_themes == 0)).astype(np.int8)
+    return pd.DataFrame(columns)
+
+
+def _evidence_table(coded: pd.DataFrame, result: CodingResult) -> pd.DataFrame:
+    rows = result.evidence["document"].to_numpy()
+    evidence = pd.DataFrame({
+        "response_id": coded["response_id"].to_numpy()[rows],
+        "question": coded["question"].to_numpy()[rows],
+        "theme": result.evidence["theme"].to_numpy(),
+        "term": result.evidence["term"].to_numpy(),
+        "start": result.evidence["start"].to_numpy(),
+        "end": result.evidence["end"].to_numpy(),
+        "matched_text": [redact(text) for text in result.evidence["matched_text"].tolist()],
+    })
+    return evidence[EVIDENCE_COLUMNS]
+
+
+def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig) -> pd.DataFrame:
+    themes = list(lexicon.ids)
+    weights = coded[config.weight].to_numpy(dtype=float) if config.weight else np.ones(len(coded))
+    answered = coded["answered"].to_numpy(dtype=bool)
+    frames = []
+    for question in config.questions:
+        in_question = (coded["question"] == question).to_numpy() & answered
+        values = coded.loc[in_question, themes].to_numpy(dtype=float)
+        w = weights[in_question]
+        n_answered = int(in_question.sum())
+        coded_counts = values.sum(axis=0)
+        weighted = (w @ values) / w.sum() if w.sum() > 0 else np.full(len(themes), np.nan)
+        share = coded_counts / n_answered if n_answered else np.full(len(themes), np.nan)
+        uncoded = coded.loc[in_question, "uncoded"].to_numpy(dtype=float)
+        frames.append(pd.DataFrame({
+            "question": question,
+            "theme": themes + ["(uncoded)"],
+            "label": [t.label for t in lexicon.themes] + ["Answered, no theme"],
+            "parent": [t.parent or "" for t in lexicon.themes] + [""],
+            "responses_coded": np.append(coded_counts, uncoded.sum()).astype(np.int64),
+            "answered": n_answered,
+            "share": np.append(share, uncoded.mean() if n_answered else np.nan),
+            "weighted_share": np.append(weighted, (w @ uncoded) / w.sum() if w.sum() > 0 else np.nan),
+        }))
+    return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
+
+
+def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
+    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically."""
+    files = {
+        "coded.csv": csv_writer(survey.coded),
+        "coded.parquet": parquet_writer(survey.coded),
+        "evidence.csv": csv_writer(survey.evidence),
+        "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
+    }
+    return write_outputs(out_dir, files, survey.manifest)
+
+
+def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict]:
+    """Read a coded output folder (or its coded.parquet) back: (coded frame, manifest)."""
+    import json
+
+    path = Path(path)
+    folder = path if path.is_dir() else path.parent
+    table = folder / "coded.parquet" if path.is_dir() else path
+    manifest_path = folder / "manifest.json"
+    if not table.exists():
+        raise InputError("no coded.parquet here; run 'textkit code' first", source=table)
+    if not manifest_path.exists():
+        raise InputError("no manifest.json beside the coded table; run 'textkit code' again",
+                         source=manifest_path)
+    try:
+        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        coded = pd.read_parquet(table)
+    except (OSError, ValueError) as error:
+        raise InputError(f"cannot read the coded output: {error}", source=table) from error
+    return coded, manifest
