@@ -169,10 +169,13 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
     vocab_rows: list[np.ndarray] = []
     pattern_cols: list[np.ndarray] = []
     inflect_words: list[tuple[int, str]] = []
-    for pattern_id, (word, prefix, inflect) in enumerate(compiled.patterns):
-        low = np.searchsorted(vocab, word, side="left")
-        high = (np.searchsorted(vocab, word + _MAX_CODEPOINT, side="left") if prefix
-                else np.searchsorted(vocab, word, side="right"))
+    words = np.array([p[0] for p in compiled.patterns], dtype=str)
+    is_prefix = np.array([p[1] for p in compiled.patterns], dtype=bool)
+    lows = np.searchsorted(vocab, words, side="left")
+    highs = np.where(is_prefix, np.searchsorted(vocab, np.char.add(words, _MAX_CODEPOINT), side="left"),
+                     np.searchsorted(vocab, words, side="right"))
+    for pattern_id, (word, _prefix, inflect) in enumerate(compiled.patterns):
+        low, high = lows[pattern_id], highs[pattern_id]
         if high > low:
             vocab_rows.append(np.arange(low, high))
             pattern_cols.append(np.full(high - low, pattern_id))
@@ -186,11 +189,15 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
                 stem = stem or _stemmer()
                 stem_cache[word] = stem.stem(word)
             stems_wanted.setdefault(stem_cache[word], []).append(pattern_id)
-        # Only vocabulary words sharing a stem's first three letters can share the stem.
-        heads = sorted({s[:3] for s in stems_wanted})
-        candidates = np.unique(np.concatenate([
-            np.arange(np.searchsorted(vocab, h), np.searchsorted(vocab, h + _MAX_CODEPOINT)) for h in heads
-        ])) if heads else np.zeros(0, dtype=np.int64)
+        # A Snowball stem is, but for its last letter (happy -> happi), a prefix of
+        # the word: only vocabulary words starting with that head can share it.
+        heads = sorted({s[: max(3, len(s) - 1)] for s in stems_wanted})
+        head_array = np.array(heads, dtype=str)
+        head_lows = np.searchsorted(vocab, head_array)
+        head_highs = np.searchsorted(vocab, np.char.add(head_array, _MAX_CODEPOINT))
+        candidates = np.unique(np.concatenate(
+            [np.arange(low, high) for low, high in zip(head_lows, head_highs, strict=True)]
+        )) if heads else np.zeros(0, dtype=np.int64)
         for index in candidates:
             token = vocab[index]
             if token not in stem_cache:
@@ -266,25 +273,31 @@ def _covers(key_theme: np.ndarray, key_start: np.ndarray, key_length: np.ndarray
 
 
 def _contained(theme: np.ndarray, start: np.ndarray, length: np.ndarray, n_tokens: int) -> np.ndarray:
-    """True for matches lying inside a longer match of the same theme (or duplicating one)."""
+    """True for matches inside a longer match of the same theme, or repeating one.
+
+    Identical spans of one theme (e.g. "queue" and "queu*" on the same word)
+    keep only the first match in input order.
+    """
+    width = int(length.max(initial=1))
+    key = theme * (n_tokens + 1) + start
+    combined = key * (width + 1) + length
+    order = np.argsort(combined, kind="stable")
+    sorted_combined = combined[order]
+    repeat = np.zeros(len(order), dtype=bool)
+    repeat[order[1:]] = sorted_combined[1:] == sorted_combined[:-1]
+    sorted_key = key[order]
+    group_last = np.append(sorted_key[1:] != sorted_key[:-1], True)
+    unique_keys = sorted_key[group_last]
+    longest_end = (sorted_key - theme[order] * (n_tokens + 1) + length[order])[group_last]
     end = start + length
-    stride = n_tokens + 1
-    key = theme * stride + start
-    unique_keys, inverse = np.unique(key, return_inverse=True)
-    longest_end = np.full(len(unique_keys), -1, dtype=np.int64)
-    np.maximum.at(longest_end, inverse, end)
-    contained = longest_end[inverse] > end  # a longer match starts at the same token
-    for back in range(1, int(length.max(initial=1))):
+    where = np.searchsorted(unique_keys, key)
+    contained = longest_end[where] > end  # a longer match starts at the same token
+    for back in range(1, width):
         wanted = key - back
         found = np.minimum(np.searchsorted(unique_keys, wanted), len(unique_keys) - 1)
         same = (unique_keys[found] == wanted) & (start - back >= 0)
         contained |= same & (longest_end[found] >= end)
-    # identical spans of one theme (e.g. "queue" and "queu*"): keep the first term only
-    span_key = np.stack([theme, start, end], axis=1)
-    _, first_index = np.unique(span_key, axis=0, return_index=True)
-    duplicate = np.ones(len(start), dtype=bool)
-    duplicate[first_index] = False
-    return contained | duplicate
+    return contained | repeat
 
 
 class ThemeCoder:
@@ -442,4 +455,4 @@ class ThemeCoder:
             "end": char_end,
             "matched_text": matched,
         })
-        return frame.sort_values(["document", "start", "theme"], kind="stable").reset_index(drop=True)
+        return frame  # matches arrive sorted by token position, so by document and start

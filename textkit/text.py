@@ -283,10 +283,12 @@ def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None], *,
         tokens = pieces[1::2]
     else:
         tokens = TOKEN_PATTERN.findall(corpus)
-    index: dict[str, int] = {DOCUMENT_SEPARATOR: 0}
-    setdefault = index.setdefault
-    raw = np.array([setdefault(token, len(index)) for token in tokens], dtype=np.int32)
-    del tokens
+    # dict.fromkeys keeps first-seen order; map over a C method avoids a Python loop body
+    seen = dict.fromkeys([DOCUMENT_SEPARATOR])
+    seen.update(dict.fromkeys(tokens))
+    index = {token: number for number, token in enumerate(seen)}
+    raw = np.fromiter(map(index.__getitem__, tokens), dtype=np.int32, count=len(tokens))
+    del tokens, seen
     separator = raw == 0
     doc_of_token = np.cumsum(separator, dtype=np.int64)
     keep = ~separator

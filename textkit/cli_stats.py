@@ -1,0 +1,141 @@
+"""Command line for survey statistics: ``textkit prevalence``.
+
+Only click is imported at module level; pandas, scipy and statsmodels load inside
+the command. Errors a user can cause are raised as
+:class:`textkit.errors.TextkitError` and left to propagate: the group command in
+``textkit/cli.py`` prints them as one line on stderr and exits with status 2.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import click
+
+
+def _load_coded(source: Path) -> tuple[Any, dict, list[str], dict]:
+    """(coded frame, roles, themes, input record) from a coded folder, coded file or config."""
+    from .errors import InputError
+
+    suffix = source.suffix.lower()
+    if suffix in (".yaml", ".yml"):
+        from .pipeline import code_survey
+
+        survey = code_survey(source)
+        roles = dict(survey.roles)
+        config = getattr(survey, "config", None)
+        for key in ("single_psu", "nest", "require_clusters"):
+            if key not in roles and config is not None and hasattr(config, key):
+                roles[key] = getattr(config, key)
+        return survey.coded, roles, list(survey.themes), {"config": str(source)}
+    import json
+
+    from .output import file_sha256
+    from .readers import read_table
+
+    if source.is_dir():
+        folder = source
+        candidates = [folder / "coded.parquet", folder / "coded.csv"]
+        data_path = next((c for c in candidates if c.exists()), None)
+        if data_path is None:
+            raise InputError("the folder has no coded.parquet or coded.csv; run 'textkit code' first",
+                             source=source)
+    elif source.exists():
+        folder, data_path = source.parent, source
+    else:
+        raise InputError("no such file or folder", source=source)
+    manifest_path = folder / "manifest.json"
+    if not manifest_path.exists():
+        raise InputError("manifest.json is missing beside the coded table; it names the design columns and "
+                         "themes (run 'textkit code' to write both)", source=manifest_path)
+    try:
+        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as error:
+        raise InputError(f"manifest.json cannot be read: {error}", source=manifest_path) from error
+    if "roles" not in manifest or "themes" not in manifest:
+        raise InputError("manifest.json has no 'roles' or 'themes' key; it is not from 'textkit code'",
+                         source=manifest_path)
+    frame, _ = read_table(data_path)
+    if data_path.suffix.lower() == ".csv":
+        import pandas as pd
+
+        numeric = [c for c in (*manifest["themes"], "answered", manifest["roles"].get("weight"),
+                               manifest["roles"].get("fpc")) if c and c in frame.columns]
+        for column in numeric:
+            frame[column] = pd.to_numeric(frame[column], errors="coerce")
+    record = {"coded": {"path": str(data_path), "sha256": file_sha256(data_path)}}
+    return frame, dict(manifest["roles"]), list(manifest["themes"]), record
+
+
+@click.command("prevalence")
+@click.argument("coded_or_config", type=click.Path(path_type=Path))
+@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+              help="Folder for prevalence.csv, comparisons.csv, group_tests.csv and manifest.json.")
+@click.option("--method", default=None, metavar="NAME",
+              help="Interval method: korn-graubard (default, alias beta), logit or wilson.")
+@click.option("--confidence", default=0.95, show_default=True, type=float, help="Confidence level.")
+@click.option("--rule", "rule_name", default=None, metavar="NAME",
+              help="Publishing rule: nchs-like (default), abs-like or statcan-like.")
+@click.option("--min-base", type=int, default=None,
+              help="Override the rule: unweighted base below this is suppressed.")
+@click.option("--caution-rse", type=float, default=None,
+              help="Override the rule: relative SE at or above this (e.g. 0.3) is flagged caution.")
+@click.option("--quiet", is_flag=True, help="Print nothing on success.")
+def prevalence_command(coded_or_config: Path, out_dir: Path, method: str | None, confidence: float,
+                       rule_name: str | None, min_base: int | None, caution_rse: float | None,
+                       quiet: bool) -> None:
+    """Weighted theme prevalence by group and wave, with comparisons and tests.
+
+    CODED_OR_CONFIG is a folder written by 'textkit code' (coded.parquet and
+    manifest.json), its coded.parquet, or a survey config YAML (coded first).
+    """
+    import dataclasses
+
+    from .design import SurveyDesign
+    from .errors import AnalysisError
+    from .estimate import DEFAULT_METHOD, DEFAULT_RULE, RULES, analyse
+    from .output import csv_writer, write_outputs
+
+    if rule_name is None:
+        rule = DEFAULT_RULE
+    elif rule_name in RULES:
+        rule = RULES[rule_name]
+    else:
+        raise AnalysisError(f"unknown rule '{rule_name}'; choose one of {', '.join(RULES)}")
+    if min_base is not None:
+        rule = dataclasses.replace(rule, min_n=min_base)
+    if caution_rse is not None:
+        rule = dataclasses.replace(rule, caution_rse=caution_rse)
+
+    coded, roles, themes, record = _load_coded(coded_or_config)
+    source = str(record.get("coded", {}).get("path", coded_or_config))
+    id_column = "response_id" if "response_id" in coded.columns else roles.get("id")
+    design = SurveyDesign.from_frame(
+        coded, roles.get("weight"), roles.get("strata"), roles.get("cluster"), roles.get("fpc"),
+        roles.get("single_psu") or "error", wave=roles.get("wave"), id=id_column,
+        nest=bool(roles.get("nest", False)), require_clusters=bool(roles.get("require_clusters", False)),
+        source=source)
+    analysis = analyse(coded, themes, design, groups=list(roles.get("groups") or []), wave=roles.get("wave"),
+                       id_column=id_column, method=method or DEFAULT_METHOD, confidence=confidence, rule=rule)
+    table = analysis.prevalence()
+    comparisons = analysis.comparisons()
+    tests = analysis.group_tests()
+    manifest = {
+        "command": "prevalence",
+        "inputs": record,
+        "roles": roles,
+        "themes": themes,
+        "settings": {"method": method or DEFAULT_METHOD, "confidence": confidence,
+                     "rule": dataclasses.asdict(rule)},
+        "design": {"strata": design.n_strata, "psus": design.n_psus, "df": design.df,
+                   "single_psu": design.single_psu},
+        "counts": {"prevalence": len(table), "comparisons": len(comparisons), "group_tests": len(tests)},
+    }
+    write_outputs(out_dir, {"prevalence.csv": csv_writer(table), "comparisons.csv": csv_writer(comparisons),
+                            "group_tests.csv": csv_writer(tests)}, manifest)
+    if not quiet:
+        flags = table["flag"].value_counts()
+        click.echo(f"{len(table)} estimates ({flags.get('ok', 0)} ok, {flags.get('caution', 0)} caution, "
+                   f"{flags.get('suppress', 0)} suppress), {len(comparisons)} comparisons, "
+                   f"{len(tests)} group tests -> {out_dir}")

@@ -1,0 +1,547 @@
+"""Survey config: a small YAML file that says which file to read and what each column is.
+
+Example::
+
+    survey: visitors_2026.csv        # relative to this config file
+    id: response_id
+    questions:                       # question name -> text column (order kept)
+      low_point: low_point_text
+      high_point: high_point_text
+    weight: weight                   # optional; none means every response weighs 1
+    design:                          # optional
+      strata: stratum
+      cluster: psu
+      fpc: stratum_population        # population size N_h of each stratum
+      single_psu: error              # error | centre | collapse
+    wave: wave                       # optional
+    groups: [market, age_band]       # optional
+    lexicon: ../lexicons/visitor_experience.yaml
+    seed: 20261202
+    non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
+
+Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
+index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
+
+The file is parsed with PyYAML's safe loader, but through the node tree so every
+error names the config line. This module imports only the standard library and
+PyYAML, so the CLI can import it at start-up.
+"""
+
+from __future__ import annotations
+
+import codecs
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from .errors import InputError
+
+#: Survey file suffix (lower case) -> reader family.
+SURVEY_FORMATS: dict[str, str] = {
+    ".csv": "csv", ".tsv": "csv", ".txt": "csv",
+    ".xlsx": "excel", ".xlsm": "excel",
+    ".parquet": "parquet", ".pq": "parquet",
+    ".sav": "spss", ".zsav": "spss",
+    ".sqlite": "sqlite", ".sqlite3": "sqlite", ".db": "sqlite",
+}
+
+#: Reading option -> the reader families it applies to.
+READING_OPTIONS: dict[str, tuple[str, ...]] = {
+    "sheet": ("excel",),
+    "table": ("sqlite",),
+    "query": ("sqlite",),
+    "encoding": ("csv",),
+    "delimiter": ("csv",),
+}
+
+#: Policies for a stratum with a single primary sampling unit (used by the statistics).
+SINGLE_PSU_POLICIES: tuple[str, ...] = ("error", "centre", "collapse")
+
+#: Answers that count as "not answered" when the config gives none (compared after
+#: trimming, collapsing inner whitespace and lower-casing).
+DEFAULT_NON_ANSWERS: tuple[str, ...] = (
+    "n/a", "na", "n.a.", "none", "-", "--", "nil", "no comment", "no comments", ".",
+)
+
+_TOP_KEYS: tuple[str, ...] = (
+    "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
+    "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
+)
+_DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu")
+_REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
+
+# Roles whose columns may also serve another role in this set (a stratum or wave
+# variable is often reported as a group too). Every other pairing is an error.
+_SHAREABLE_ROLES = frozenset({"strata", "cluster", "wave", "group"})
+
+
+def survey_format(path: str | Path) -> str | None:
+    """Reader family (``"csv"``, ``"excel"``, ``"parquet"``, ``"spss"``, ``"sqlite"``) of a
+    survey file from its suffix, or None for an unknown suffix."""
+    return SURVEY_FORMATS.get(Path(path).suffix.lower())
+
+
+def reading_option_misfit(path: str | Path, option: str) -> str | None:
+    """Why ``option`` (a key of :data:`READING_OPTIONS`) does not fit the file type of
+    ``path``, or None when it fits (or the type is unknown, which is reported elsewhere)."""
+    family = survey_format(path)
+    allowed = READING_OPTIONS[option]
+    if family is None or family in allowed:
+        return None
+    suffixes = ", ".join(s for s, f in SURVEY_FORMATS.items() if f in allowed)
+    return f"'{option}' applies only to {' / '.join(allowed)} files ({suffixes}), not to a {family} file"
+
+
+@dataclass(frozen=True)
+class SurveyConfig:
+    """A validated survey config.
+
+    Attributes
+    ----------
+    path : Path or None
+        The config file (None when built from a mapping).
+    survey : Path
+        The survey file, resolved against the config's folder.
+    sheet : str or int or None
+        Excel sheet name or 0-based index (default: the first sheet).
+    table, query : str or None
+        SQLite table name, or a read-only SQL query (at most one of the two).
+    encoding, delimiter : str or None
+        Forced CSV text encoding and field delimiter (default: detected).
+    id_column : str
+        Column holding the unique response id.
+    questions : dict of str to str
+        Question name -> text column, in config order.
+    weight : str or None
+        Weight column (None: every response weighs 1).
+    strata, cluster, fpc : str or None
+        Design columns; ``fpc`` holds the population size N_h of each stratum.
+    single_psu : str
+        Policy for a stratum with one PSU: ``"error"`` (default), ``"centre"`` or ``"collapse"``.
+    wave : str or None
+        Survey wave column.
+    groups : tuple of str
+        Group (breakdown) columns, in config order.
+    lexicon : Path or None
+        Theme lexicon, resolved against the config's folder.
+    seed : int
+        Seed for every random step (default 0).
+    non_answers : tuple of str
+        Normalised (trimmed, single-spaced, lower-cased) answers that count as not answered.
+    """
+
+    path: Path | None
+    survey: Path
+    id_column: str
+    questions: dict[str, str]
+    sheet: str | int | None = None
+    table: str | None = None
+    query: str | None = None
+    encoding: str | None = None
+    delimiter: str | None = None
+    weight: str | None = None
+    strata: str | None = None
+    cluster: str | None = None
+    fpc: str | None = None
+    single_psu: str = "error"
+    wave: str | None = None
+    groups: tuple[str, ...] = ()
+    lexicon: Path | None = None
+    seed: int = 0
+    non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
+
+    def roles(self) -> dict[str, Any]:
+        """Column roles as a JSON-serialisable dict (for manifests).
+
+        Keys: ``id``, ``questions`` (name -> column), ``weight``, ``strata``, ``cluster``,
+        ``fpc``, ``wave`` (str or None) and ``groups`` (list of str).
+        """
+        return {
+            "id": self.id_column,
+            "questions": dict(self.questions),
+            "weight": self.weight,
+            "strata": self.strata,
+            "cluster": self.cluster,
+            "fpc": self.fpc,
+            "wave": self.wave,
+            "groups": list(self.groups),
+        }
+
+    def design_columns(self) -> list[str]:
+        """The configured weight, strata, cluster, fpc, wave and group columns, in that
+        order, without None and without repeats."""
+        columns = [self.weight, self.strata, self.cluster, self.fpc, self.wave, *self.groups]
+        return list(dict.fromkeys(c for c in columns if c is not None))
+
+    def reading_options(self) -> dict[str, Any]:
+        """Keyword arguments for :func:`textkit.readers.read_table` (only those set)."""
+        options = {"sheet": self.sheet, "table": self.table, "query": self.query,
+                   "encoding": self.encoding, "delimiter": self.delimiter}
+        return {k: v for k, v in options.items() if v is not None}
+
+
+# ---------------------------------------------------------------------------
+# A tiny uniform tree over YAML nodes and plain Python values, so that one
+# validator serves both load_config (with line numbers) and config_from_mapping.
+
+
+@dataclass
+class _Item:
+    kind: str                      # "null", "scalar", "sequence" or "mapping"
+    line: int | None               # 1-based line of the value
+    value: Any = None              # scalar: constructed Python value
+    text: str | None = None        # scalar: the text as written
+    items: list[_Item] = field(default_factory=list)                  # sequence
+    entries: dict[str, tuple[int | None, _Item]] = field(default_factory=dict)  # mapping: key -> (line, item)
+
+
+class _Builder:
+    def __init__(self, source: str | Path) -> None:
+        self.source = source
+
+    def fail(self, message: str, line: int | None) -> InputError:
+        return InputError(message, source=self.source, line=line)
+
+    def from_node(self, node: yaml.Node, loader: yaml.SafeLoader) -> _Item:
+        line = node.start_mark.line + 1
+        if isinstance(node, yaml.MappingNode):
+            item = _Item("mapping", line)
+            for key_node, value_node in node.value:
+                key_line = key_node.start_mark.line + 1
+                if not isinstance(key_node, yaml.ScalarNode):
+                    raise self.fail("a key must be plain text, not a list or mapping", key_line)
+                key = key_node.value
+                if key in item.entries:
+                    first = item.entries[key][0]
+                    raise self.fail(f"key '{key}' is given twice (first on line {first}); keep one", key_line)
+                item.entries[key] = (key_line, self.from_node(value_node, loader))
+            return item
+        if isinstance(node, yaml.SequenceNode):
+            return _Item("sequence", line, items=[self.from_node(n, loader) for n in node.value])
+        try:
+            value = loader.construct_object(node, deep=True)
+        except yaml.YAMLError as error:
+            raise self.fail(f"cannot read this value: {getattr(error, 'problem', error)}", line) from error
+        if value is None:
+            return _Item("null", line)
+        return _Item("scalar", line, value=value, text=node.value)
+
+    def from_python(self, value: Any) -> _Item:
+        if value is None:
+            return _Item("null", None)
+        if isinstance(value, Mapping):
+            item = _Item("mapping", None)
+            for key, sub in value.items():
+                if not isinstance(key, str):
+                    raise self.fail(f"key {key!r} must be text", None)
+                item.entries[key] = (None, self.from_python(sub))
+            return item
+        if isinstance(value, list | tuple):
+            return _Item("sequence", None, items=[self.from_python(v) for v in value])
+        if isinstance(value, Path):
+            value = str(value)
+        return _Item("scalar", None, value=value, text=str(value))
+
+
+def _describe(item: _Item) -> str:
+    if item.kind == "scalar":
+        return f"{type(item.value).__name__} {item.text!r}"
+    return {"null": "nothing", "sequence": "a list", "mapping": "a mapping"}[item.kind]
+
+
+class _Validator:
+    def __init__(self, builder: _Builder, base_dir: Path) -> None:
+        self.b = builder
+        self.base_dir = base_dir
+        self.role_of: dict[str, tuple[str, int | None]] = {}
+
+    def fail(self, message: str, line: int | None) -> InputError:
+        return self.b.fail(message, line)
+
+    def check_keys(self, mapping: _Item, allowed: tuple[str, ...], where: str) -> None:
+        for key, (line, _) in mapping.entries.items():
+            if key not in allowed:
+                raise self.fail(f"unknown key '{key}' in {where}; valid keys are: {', '.join(allowed)}", line)
+
+    def text(self, item: _Item, name: str, *, optional: bool = False) -> str | None:
+        """A non-empty text value (strings only)."""
+        if item.kind == "null" and optional:
+            return None
+        if item.kind != "scalar" or not isinstance(item.value, str) or not item.value.strip():
+            raise self.fail(f"'{name}' must be non-empty text, found {_describe(item)}", item.line)
+        return item.value
+
+    def column(self, item: _Item, name: str, *, optional: bool = True) -> str | None:
+        """A column name as written: numbers keep their written text (a column may be
+        called 2026), but true/false must be quoted to avoid surprises."""
+        if item.kind == "null" and optional:
+            return None
+        is_name = isinstance(item.value, str | int | float) and not isinstance(item.value, bool)
+        if item.kind != "scalar" or not is_name:
+            hint = "; quote it if it really is a column name" if isinstance(item.value, bool) else ""
+            raise self.fail(f"'{name}' must be a column name, found {_describe(item)}{hint}", item.line)
+        column = item.value if isinstance(item.value, str) else str(item.text)
+        if not column.strip():
+            raise self.fail(f"'{name}' must be a column name, found empty text", item.line)
+        return column
+
+    def claim(self, column: str | None, role: str, line: int | None) -> None:
+        """Record that ``column`` plays ``role``; refuse incompatible double use."""
+        if column is None:
+            return
+        if column in self.role_of:
+            other, other_line = self.role_of[column]
+            if other == role or not (role in _SHAREABLE_ROLES and other in _SHAREABLE_ROLES) or \
+                    {role, other} == {"strata", "cluster"}:
+                at = f" (line {other_line})" if other_line is not None else ""
+                raise self.fail(
+                    f"column '{column}' is used as {role} but is already the {other} column{at}; "
+                    "a column can play only one of these roles", line)
+            return
+        self.role_of[column] = (role, line)
+
+    def path(self, item: _Item, name: str, *, optional: bool = False) -> Path | None:
+        raw = self.text(item, name, optional=optional)
+        if raw is None:
+            return None
+        path = Path(raw).expanduser()
+        if not path.is_absolute():
+            path = self.base_dir / path
+        return path.resolve()
+
+    def validate(self, root: _Item) -> dict[str, Any]:
+        if root.kind != "mapping":
+            raise self.fail(f"a survey config must be a mapping of keys (survey:, id:, questions:), "
+                            f"found {_describe(root)}", root.line)
+        self.check_keys(root, _TOP_KEYS, "the survey config")
+        entries = {key: item for key, (_, item) in root.entries.items()}
+        key_line = {key: line for key, (line, _) in root.entries.items()}
+        for key in _REQUIRED:
+            if key not in entries:
+                raise self.fail(f"required key '{key}' is missing; a survey config needs "
+                                f"{', '.join(_REQUIRED)}", root.line)
+        out: dict[str, Any] = {}
+        out["survey"] = self.path(entries["survey"], "survey")
+        if survey_format(out["survey"]) is None:
+            raise self.fail(f"'survey' has an unknown file type '{out['survey'].suffix}'; expected one of "
+                            f"{', '.join(SURVEY_FORMATS)}", entries["survey"].line)
+        self.reading(entries, key_line, out)
+
+        out["id_column"] = self.column(entries["id"], "id", optional=False)
+        self.claim(out["id_column"], "id", entries["id"].line)
+        out["questions"] = self.questions(entries["questions"])
+        out["weight"] = self.column(entries.get("weight", _Item("null", None)), "weight")
+        self.claim(out["weight"], "weight", entries.get("weight", _Item("null", None)).line)
+
+        design = entries.get("design", _Item("null", None))
+        if design.kind not in ("null", "mapping"):
+            raise self.fail(f"'design' must be a mapping (strata:, cluster:, fpc:, single_psu:), "
+                            f"found {_describe(design)}", design.line)
+        self.check_keys(design, _DESIGN_KEYS, "'design'")
+        for key in ("strata", "cluster", "fpc"):
+            item = design.entries.get(key, (None, _Item("null", None)))[1]
+            out[key] = self.column(item, f"design.{key}")
+            self.claim(out[key], key, item.line)
+        policy_item = design.entries.get("single_psu", (None, None))[1]
+        out["single_psu"] = "error"
+        if policy_item is not None:
+            policy = self.text(policy_item, "design.single_psu")
+            if policy not in SINGLE_PSU_POLICIES:
+                raise self.fail(f"'design.single_psu' must be one of {', '.join(SINGLE_PSU_POLICIES)}, "
+                                f"found {policy!r}", policy_item.line)
+            out["single_psu"] = policy
+
+        wave = entries.get("wave", _Item("null", None))
+        out["wave"] = self.column(wave, "wave")
+        self.claim(out["wave"], "wave", wave.line)
+        out["groups"] = self.groups(entries.get("groups", _Item("null", None)))
+        out["lexicon"] = self.path(entries.get("lexicon", _Item("null", None)), "lexicon", optional=True)
+        out["seed"] = self.seed(entries.get("seed", _Item("null", None)))
+        out["non_answers"] = self.non_answers(entries.get("non_answers"))
+        return out
+
+    def reading(self, entries: dict[str, _Item], key_line: dict[str, int | None],
+                out: dict[str, Any]) -> None:
+        survey = out["survey"]
+        for option in READING_OPTIONS:
+            if option in entries and entries[option].kind != "null":
+                misfit = reading_option_misfit(survey, option)
+                if misfit:
+                    raise self.fail(misfit, key_line[option])
+        sheet = entries.get("sheet", _Item("null", None))
+        if sheet.kind == "null":
+            out["sheet"] = None
+        elif sheet.kind == "scalar" and isinstance(sheet.value, int) and not isinstance(sheet.value, bool):
+            if sheet.value < 0:
+                raise self.fail("'sheet' index must be 0 or more (0 is the first sheet), "
+                                f"found {sheet.value}", sheet.line)
+            out["sheet"] = sheet.value
+        else:
+            out["sheet"] = self.text(sheet, "sheet")
+        out["table"] = self.text(entries.get("table", _Item("null", None)), "table", optional=True)
+        out["query"] = self.text(entries.get("query", _Item("null", None)), "query", optional=True)
+        if out["table"] is not None and out["query"] is not None:
+            raise self.fail("give either 'table' or 'query', not both", key_line["query"])
+        encoding = entries.get("encoding", _Item("null", None))
+        out["encoding"] = self.text(encoding, "encoding", optional=True)
+        if out["encoding"] is not None:
+            try:
+                codecs.lookup(out["encoding"])
+            except LookupError:
+                raise self.fail(f"unknown text encoding {out['encoding']!r}; try utf-8, cp1252 or latin-1",
+                                encoding.line) from None
+        delimiter = entries.get("delimiter", _Item("null", None))
+        if delimiter.kind == "null":
+            out["delimiter"] = None
+        else:
+            value = delimiter.value
+            if delimiter.kind != "scalar" or not isinstance(value, str) or len(value) != 1:
+                raise self.fail("'delimiter' must be one character (write \"\\t\" in double quotes for "
+                                f"a tab), found {_describe(delimiter)}", delimiter.line)
+            if delimiter.value in "\"\r\n":
+                raise self.fail(f"'delimiter' cannot be {delimiter.value!r}", delimiter.line)
+            out["delimiter"] = delimiter.value
+
+    def questions(self, item: _Item) -> dict[str, str]:
+        questions: dict[str, str] = {}
+        if item.kind == "mapping":
+            pairs = [(name, line, sub) for name, (line, sub) in item.entries.items()]
+            for name, line, sub in pairs:
+                if not name.strip():
+                    raise self.fail("a question name must be non-empty text", line)
+                column = self.column(sub, f"questions.{name}", optional=False)
+                self.claim(column, f"text column of question '{name}'", sub.line or line)
+                questions[name] = column
+        elif item.kind == "sequence":
+            for sub in item.items:
+                column = self.column(sub, "questions", optional=False)
+                self.claim(column, f"text column of question '{column}'", sub.line)
+                questions[column] = column
+        else:
+            raise self.fail(f"'questions' must map question names to text columns, or list text columns, "
+                            f"found {_describe(item)}", item.line)
+        if not questions:
+            raise self.fail("'questions' is empty; name at least one text column", item.line)
+        return questions
+
+    def groups(self, item: _Item) -> tuple[str, ...]:
+        if item.kind == "null":
+            return ()
+        subs = item.items if item.kind == "sequence" else [item]
+        groups: list[str] = []
+        for sub in subs:
+            column = self.column(sub, "groups", optional=False)
+            if column in groups:
+                raise self.fail(f"group column '{column}' is listed twice", sub.line)
+            self.claim(column, "group", sub.line)
+            groups.append(column)
+        return tuple(groups)
+
+    def seed(self, item: _Item) -> int:
+        if item.kind == "null":
+            return 0
+        if item.kind != "scalar" or isinstance(item.value, bool) or not isinstance(item.value, int) \
+                or item.value < 0:
+            raise self.fail(f"'seed' must be a whole number 0 or more, found {_describe(item)}", item.line)
+        return int(item.value)
+
+    def non_answers(self, item: _Item | None) -> tuple[str, ...]:
+        if item is None:
+            return DEFAULT_NON_ANSWERS
+        if item.kind == "null":
+            return ()
+        subs = item.items if item.kind == "sequence" else [item]
+        values: list[str] = []
+        for sub in subs:
+            if sub.kind != "scalar" or isinstance(sub.value, bool):
+                raise self.fail(f"'non_answers' must be a list of texts, found {_describe(sub)}", sub.line)
+            values.append(normalise_answer(str(sub.text if not isinstance(sub.value, str) else sub.value)))
+        return tuple(dict.fromkeys(v for v in values if v))
+
+
+def normalise_answer(text: str) -> str:
+    """The form in which answers are compared with non-answers: trimmed, inner
+    whitespace runs collapsed to one space, lower-cased."""
+    return " ".join(text.split()).lower()
+
+
+def config_from_mapping(mapping: Mapping[str, Any], base_dir: str | Path = ".",
+                        *, source: str | Path = "survey config") -> SurveyConfig:
+    """Build a :class:`SurveyConfig` from a plain mapping (for notebooks).
+
+    Parameters
+    ----------
+    mapping : mapping
+        The same keys as a YAML survey config.
+    base_dir : path, default "."
+        Folder that relative ``survey`` and ``lexicon`` paths are resolved against.
+    source : str or path, default "survey config"
+        Name used in error messages.
+
+    Raises
+    ------
+    InputError
+        For the same problems as :func:`load_config` (without line numbers).
+    """
+    builder = _Builder(source)
+    fields = _Validator(builder, Path(base_dir).expanduser().resolve()).validate(builder.from_python(mapping))
+    return SurveyConfig(path=None, **fields)
+
+
+def load_config(path: str | Path) -> SurveyConfig:
+    """Read and validate a YAML survey config.
+
+    Parameters
+    ----------
+    path : path
+        The config file. Relative ``survey`` and ``lexicon`` paths in it are resolved
+        against its folder.
+
+    Returns
+    -------
+    SurveyConfig
+
+    Raises
+    ------
+    InputError
+        With ``source`` the config path and ``line`` the offending line: missing or
+        unreadable file, not YAML, not a mapping, unknown or repeated keys, missing
+        required keys, wrong value types, a column in incompatible roles, an unknown
+        ``single_psu`` policy, a reading option that does not fit the survey's file type.
+    """
+    config_path = Path(path).expanduser()
+    if not config_path.exists():
+        raise InputError("survey config not found", source=config_path)
+    if config_path.is_dir():
+        raise InputError("expected a survey config file (YAML), found a folder", source=config_path)
+    try:
+        text = config_path.read_bytes().decode("utf-8-sig")
+    except UnicodeDecodeError as error:
+        raise InputError(f"a survey config must be UTF-8 text (bad byte at offset {error.start})",
+                         source=config_path) from error
+    except OSError as error:
+        raise InputError(f"cannot read the survey config: {error.strerror}", source=config_path) from error
+    builder = _Builder(config_path)
+    loader = yaml.SafeLoader(text)
+    try:
+        node = loader.get_single_node()
+    except yaml.MarkedYAMLError as error:
+        mark = error.problem_mark or error.context_mark
+        line = mark.line + 1 if mark is not None else None
+        raise InputError(f"not valid YAML: {error.problem or error.context}", source=config_path,
+                         line=line) from error
+    except yaml.YAMLError as error:
+        raise InputError(f"not valid YAML: {error}", source=config_path) from error
+    if node is None:
+        loader.dispose()
+        raise InputError("the survey config is empty; it needs survey:, id: and questions:",
+                         source=config_path, line=1)
+    try:
+        root = builder.from_node(node, loader)
+    finally:
+        loader.dispose()
+    fields = _Validator(builder, config_path.resolve().parent).validate(root)
+    return SurveyConfig(path=config_path.resolve(), **fields)

@@ -1,0 +1,903 @@
+"""Theme lexicon: the file format, a parser with line-numbered errors, lint, content hash.
+
+A lexicon is a YAML file that a researcher edits by hand (``lexicons/README.md``
+is the guide). It lists *themes*; each theme has *terms* that raise it and
+*exclusions* that veto a misleading hit::
+
+    lexicon: visitor-experience
+    version: "2026.1"
+    language: en
+    settings:
+      negation_window: 4     # tokens after a negation cue that are negated (1..10)
+      inflect: true          # default for themes: match inflections of words
+    themes:
+      - id: cost_value
+        label: Cost and value
+        about: Prices, fees and value for money.
+        parent: null         # id of another theme; a child's hit counts for it too
+        negated: drop        # drop: negated mentions don't count | keep: they do
+        terms: [expensive, rip off, expens*, value for money]
+        exclude: [free parking]
+
+Terms
+-----
+A term is split with :func:`textkit.text.word_tokens`, so it is normalised
+exactly like the answers (case, curly quotes, full-width forms; punctuation
+dropped). A word ending in ``*`` is a prefix wildcard: at least
+:data:`MIN_PREFIX` characters before it, ``*`` only at the end of a word, on
+any word of a phrase. A term item is either text or a mapping
+``{term: ..., inflect: false}`` that overrides inflection for that term. The
+text of a term is taken as written: YAML's conversions (``yes`` to a boolean,
+``3.50`` to a number) are not applied to it. Terms (and exclusions) are kept
+de-duplicated by their words within a theme, first occurrence first.
+
+Nothing is loaded with ``yaml.load``: the file is *composed* into nodes, so
+every problem names the line of the node it is about.
+"""
+
+from __future__ import annotations
+
+import bisect
+import difflib
+import hashlib
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import yaml
+
+from .errors import LexiconError
+from .text import is_negation_cue, normalise, word_tokens
+
+if TYPE_CHECKING:
+    import pandas as pd
+    import scipy.sparse
+
+#: Characters a prefix wildcard needs before its ``*``.
+MIN_PREFIX = 3
+#: Allowed values of a theme's ``negated`` policy.
+NEGATED_POLICIES = ("drop", "keep")
+#: Allowed range of ``settings.negation_window`` (inclusive).
+NEGATION_WINDOW_RANGE = (1, 10)
+#: Default ``settings.negation_window`` (the tokeniser's default too).
+DEFAULT_NEGATION_WINDOW = 4
+#: Columns of :func:`lint_lexicon`'s table.
+LINT_COLUMNS = ("kind", "theme", "term", "line", "detail")
+#: Lint kinds, in report order.
+LINT_KINDS = ("shared_term", "redundant", "vetoed_term", "unused_term", "no_hits")
+
+_ID = re.compile(r"[a-z][a-z0-9_]*\Z")
+_LANGUAGE = re.compile(r"[a-z]{2,3}(?:[-_][a-z0-9]{2,8})*\Z", re.IGNORECASE)
+_WORD_CHAR = re.compile(r"[^\W_]\Z")
+_TOP_KEYS = ("lexicon", "version", "language", "settings", "themes")
+_SETTINGS_KEYS = ("negation_window", "inflect")
+_THEME_KEYS = ("id", "label", "about", "parent", "negated", "inflect", "terms", "exclude")
+_TERM_KEYS = ("term", "inflect")
+_NULL_TAG = "tag:yaml.org,2002:null"
+_BOOL_TAG = "tag:yaml.org,2002:bool"
+_INT_TAG = "tag:yaml.org,2002:int"
+# ISO 639-1 code -> Snowball stemmer language (only used by lint to spot inflection twins).
+_SNOWBALL_LANGUAGES = {
+    "en": "english", "da": "danish", "de": "german", "es": "spanish", "fi": "finnish",
+    "fr": "french", "hu": "hungarian", "it": "italian", "nb": "norwegian", "nl": "dutch",
+    "no": "norwegian", "pt": "portuguese", "ro": "romanian", "ru": "russian", "sv": "swedish",
+}
+
+
+@dataclass(frozen=True)
+class Term:
+    """One term (or exclusion) of a theme.
+
+    Attributes
+    ----------
+    text : str
+        The term as written in the file.
+    words : tuple of str
+        Normalised tokens (:func:`textkit.text.word_tokens`); a word ending in
+        ``"*"`` is a prefix wildcard (the prefix is ``word[:-1]``).
+    inflect : bool
+        Whether the non-wildcard words also match their inflections.
+    line : int
+        1-based line of the term in the lexicon file.
+    """
+
+    text: str
+    words: tuple[str, ...]
+    inflect: bool
+    line: int
+
+    @property
+    def is_phrase(self) -> bool:
+        """True for terms of more than one word."""
+        return len(self.words) > 1
+
+    @property
+    def has_wildcard(self) -> bool:
+        """True if any word is a prefix wildcard."""
+        return any(word.endswith("*") for word in self.words)
+
+
+@dataclass(frozen=True)
+class Theme:
+    """One theme: what it is, its place in the hierarchy, and its terms.
+
+    Attributes
+    ----------
+    id : str
+        Identifier, ``[a-z][a-z0-9_]*``, unique in the lexicon.
+    label : str
+        Human-readable name for tables and charts.
+    about : str
+        Description for the researcher ("" when not given).
+    parent : str or None
+        Id of the parent theme; a hit of this theme counts for the parent too.
+    terms : tuple of Term
+        Terms that raise the theme, file order, de-duplicated by words.
+    exclusions : tuple of Term
+        Phrases that veto an overlapping hit of this theme's terms.
+    negated : {"drop", "keep"}
+        Whether negated mentions are dropped (problem themes) or kept
+        (availability themes: "no toilets" is about toilets).
+    line : int
+        1-based line where the theme starts.
+    """
+
+    id: str
+    label: str
+    about: str
+    parent: str | None
+    terms: tuple[Term, ...]
+    exclusions: tuple[Term, ...]
+    negated: str
+    line: int
+
+
+@dataclass(frozen=True)
+class Lexicon:
+    """A validated theme lexicon.
+
+    Attributes
+    ----------
+    name, version, language : str
+        From the file's ``lexicon``, ``version`` ("" if absent) and
+        ``language`` ("en" if absent) keys.
+    themes : tuple of Theme
+        In file order; this is the column order of every theme matrix.
+    negation_window : int
+        Tokens after a negation cue that are negated (default 4).
+    source : str
+        Path of the file, or ``"<string>"``.
+    sha256 : str
+        Hex SHA-256 of the file bytes (or of the UTF-8 text when parsed from a
+        string); recorded in output manifests.
+    """
+
+    name: str
+    version: str
+    language: str
+    themes: tuple[Theme, ...]
+    negation_window: int
+    source: str
+    sha256: str
+    _index: dict[str, int] = field(default_factory=dict, init=False, repr=False, compare=False,
+                                   hash=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "_index", {theme.id: i for i, theme in enumerate(self.themes)})
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        """Theme ids in file order."""
+        return tuple(theme.id for theme in self.themes)
+
+    def theme(self, theme_id: str) -> Theme:
+        """The theme with id ``theme_id``.
+
+        Raises
+        ------
+        LexiconError
+            If there is no such theme (the message suggests close ids).
+        """
+        index = self._index.get(theme_id)
+        if index is None:
+            raise LexiconError(f"no theme '{theme_id}' in lexicon '{self.name}'"
+                               f"{_suggest(theme_id, self.ids)}", source=self.source)
+        return self.themes[index]
+
+    def ancestors(self, theme_id: str) -> tuple[str, ...]:
+        """Ids of the parent, grandparent, ... of ``theme_id`` (nearest first)."""
+        chain: list[str] = []
+        parent = self.theme(theme_id).parent
+        while parent is not None and parent not in chain:  # parsed lexicons have no cycles
+            chain.append(parent)
+            parent = self.themes[self._index[parent]].parent
+        return tuple(chain)
+
+    def descendants(self, theme_id: str) -> tuple[str, ...]:
+        """Ids of all themes below ``theme_id`` at any depth, in file order."""
+        self.theme(theme_id)
+        return tuple(theme.id for theme in self.themes if theme_id in self.ancestors(theme.id))
+
+    def rollup_matrix(self) -> scipy.sparse.csr_matrix:
+        """Matrix that rolls direct theme hits up to every ancestor.
+
+        Returns
+        -------
+        scipy.sparse.csr_matrix of shape (n_themes, n_themes), int32, 0/1
+            ``M[i, j] = 1`` if theme ``j`` is theme ``i`` or one of its
+            ancestors. ``direct_hits @ M`` (``direct_hits`` of shape
+            (n_responses, n_themes)) gives the rolled-up hits; an entry can
+            exceed 1 when a response hits a theme and its descendant, so take
+            ``> 0`` for a 0/1 matrix.
+        """
+        import numpy as np
+        import scipy.sparse
+
+        rows: list[int] = []
+        cols: list[int] = []
+        for i, theme in enumerate(self.themes):
+            for theme_id in (theme.id, *self.ancestors(theme.id)):
+                rows.append(i)
+                cols.append(self._index[theme_id])
+        n_themes = len(self.themes)
+        return scipy.sparse.csr_matrix(
+            (np.ones(len(rows), dtype=np.int32), (np.asarray(rows), np.asarray(cols))),
+            shape=(n_themes, n_themes), dtype=np.int32)
+
+
+# --- parsing ----------------------------------------------------------------------
+
+
+def load_lexicon(path: str | Path) -> Lexicon:
+    """Read and validate the lexicon file at ``path``.
+
+    The file is read as UTF-8 (a byte-order mark is allowed); ``sha256`` is the
+    hash of its bytes.
+
+    Raises
+    ------
+    LexiconError
+        If the file cannot be read or is not a valid lexicon; the message names
+        the file and line, and ``error.problems`` lists every problem found as
+        ``(line, message)`` pairs.
+    """
+    source = str(path)
+    try:
+        data = Path(path).read_bytes()
+    except OSError as exc:
+        reason = exc.strerror or type(exc).__name__
+        raise _raise_problems([(None, f"cannot read the lexicon file ({reason})")], source) from None
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        raise _raise_problems([(line, f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x}); "
+                                      "save it as UTF-8")], source) from None
+    return _parse(text, source, hashlib.sha256(data).hexdigest())
+
+
+def parse_lexicon(text: str, source: str = "<string>") -> Lexicon:
+    """Validate lexicon ``text`` (the content of a lexicon file).
+
+    Parameters
+    ----------
+    text : str
+        YAML text of the lexicon.
+    source : str, default "<string>"
+        Name used in error messages and stored as ``Lexicon.source``.
+
+    Raises
+    ------
+    LexiconError
+        With ``line=`` of the first problem in file order, and
+        ``error.problems``: every ``(line, message)`` found.
+    """
+    return _parse(text, source, hashlib.sha256(text.encode("utf-8")).hexdigest())
+
+
+def _parse(text: str, source: str, sha256: str) -> Lexicon:
+    text = text.removeprefix("\ufeff")
+    try:
+        root = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        raise _raise_problems([(mark.line + 1 if mark else None, _yaml_message(exc))], source) from None
+    except yaml.YAMLError as exc:
+        raise _raise_problems([(None, f"YAML syntax error: {exc}")], source) from None
+    parser = _Parser()
+    lexicon = parser.lexicon(root, source, sha256)
+    if parser.problems or lexicon is None:
+        raise _raise_problems(parser.problems, source)
+    return lexicon
+
+
+def _raise_problems(problems: list[tuple[int | None, str]], source: str) -> LexiconError:
+    """The LexiconError for ``problems``: first in file order in the message, all in ``.problems``."""
+    ordered = sorted(problems, key=lambda item: item[0] if item[0] is not None else 0)
+    line, message = ordered[0]
+    if len(ordered) > 1:
+        more = len(ordered) - 1
+        message += f" (and {more} more problem{'s' if more > 1 else ''} in this file)"
+    error = LexiconError(message, source=source, line=line)
+    error.problems = [(item_line, item_message) for item_line, item_message in ordered]
+    return error
+
+
+def _yaml_message(exc: yaml.MarkedYAMLError) -> str:
+    problem = exc.problem or "cannot read the YAML"
+    context = f" ({exc.context})" if exc.context else ""
+    hint = "check the indentation and quoting on this line"
+    if "\t" in problem or "'\\t'" in problem:
+        hint = "indent with spaces, not tabs"
+    elif "alias" in problem or "alias" in context:
+        hint = "a term starting with '*' must be quoted, and '*' may only end a word (queu*)"
+    elif "mapping values are not allowed" in problem:
+        hint = "put text containing ': ' in quotes"
+    elif "single document" in problem + context:
+        hint = "a lexicon file holds one document; remove the extra '---'"
+    return f"YAML syntax error: {problem}{context}; {hint}"
+
+
+def _suggest(word: str, options) -> str:
+    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _line(node: yaml.Node) -> int:
+    return node.start_mark.line + 1
+
+
+def _kind(node: yaml.Node) -> str:
+    if isinstance(node, yaml.MappingNode):
+        return "a mapping"
+    if isinstance(node, yaml.SequenceNode):
+        return "a list"
+    if node.tag == _NULL_TAG:
+        return "nothing"
+    return f"'{node.value}'"
+
+
+class _Parser:
+    """Walks the composed YAML nodes, collecting every problem as (line, message)."""
+
+    def __init__(self) -> None:
+        self.problems: list[tuple[int | None, str]] = []
+
+    def problem(self, line: int | None, message: str) -> None:
+        self.problems.append((line, message))
+
+    # nodes -> python values, reporting problems ------------------------------------
+
+    def mapping(self, node: yaml.MappingNode, valid: tuple[str, ...], where: str
+                ) -> dict[str, tuple[yaml.Node, yaml.Node]]:
+        """``{key: (key_node, value_node)}``; unknown and repeated keys are problems."""
+        entries: dict[str, tuple[yaml.Node, yaml.Node]] = {}
+        for key_node, value_node in node.value:
+            if not isinstance(key_node, yaml.ScalarNode):
+                self.problem(_line(key_node), f"a key {where} must be a plain word; "
+                                              f"valid keys: {', '.join(valid)}")
+                continue
+            key = key_node.value
+            if key not in valid:
+                self.problem(_line(key_node), f"unknown key '{key}' {where}{_suggest(key, valid)}; "
+                                              f"valid keys: {', '.join(valid)}")
+            elif key in entries:
+                self.problem(_line(key_node), f"key '{key}' is given twice {where} "
+                                              f"(first at line {_line(entries[key][0])})")
+            else:
+                entries[key] = (key_node, value_node)
+        return entries
+
+    def missing(self, node: yaml.MappingNode, key: str, message: str) -> None:
+        """Report a missing required ``key``, unless a misspelt key already points to it."""
+        for key_node, _ in node.value:
+            if (isinstance(key_node, yaml.ScalarNode) and key_node.value != key
+                    and difflib.get_close_matches(key_node.value, [key], n=1, cutoff=0.6)):
+                return
+        self.problem(_line(node), message)
+
+    def text(self, node: yaml.Node, what: str, required: bool = False) -> str | None:
+        """Text of a scalar as written (None for an empty value)."""
+        if not isinstance(node, yaml.ScalarNode):
+            self.problem(_line(node), f"{what} must be text, found {_kind(node)}")
+            return None
+        value = None if node.tag == _NULL_TAG and node.style is None else node.value.strip()
+        if required and not value:
+            self.problem(_line(node), f"{what} is empty; write some text after the colon")
+            return None
+        return value
+
+    def boolean(self, node: yaml.Node, what: str) -> bool | None:
+        if isinstance(node, yaml.ScalarNode) and node.tag == _BOOL_TAG and node.style is None:
+            return yaml.constructor.SafeConstructor.bool_values[node.value.lower()]
+        self.problem(_line(node), f"{what} must be true or false, found {_kind(node)}")
+        return None
+
+    def integer(self, node: yaml.Node, what: str, low: int, high: int) -> int | None:
+        if isinstance(node, yaml.ScalarNode) and node.tag == _INT_TAG and node.style is None:
+            try:
+                value = int(node.value.replace("_", ""), 0)
+            except ValueError:
+                value = None
+            if value is not None and low <= value <= high:
+                return value
+        self.problem(_line(node), f"{what} must be a whole number from {low} to {high}, "
+                                  f"found {_kind(node)}")
+        return None
+
+    # the lexicon -------------------------------------------------------------------
+
+    def lexicon(self, root: yaml.Node | None, source: str, sha256: str) -> Lexicon | None:
+        if root is None:
+            self.problem(1, "the lexicon is empty; expected a mapping with keys "
+                            f"{', '.join(_TOP_KEYS)}")
+            return None
+        if not isinstance(root, yaml.MappingNode):
+            self.problem(_line(root), f"the top level must be a mapping with keys {', '.join(_TOP_KEYS)}; "
+                                      f"found {_kind(root)}")
+            return None
+        top = self.mapping(root, _TOP_KEYS, "at the top level")
+        name = None
+        if "lexicon" in top:
+            name = self.text(top["lexicon"][1], "'lexicon' (the lexicon's name)", required=True)
+        else:
+            self.missing(root, "lexicon", "missing key 'lexicon' (the lexicon's name) at the top level")
+        version = self.text(top["version"][1], "'version'") if "version" in top else ""
+        language = "en"
+        if "language" in top:
+            value = self.text(top["language"][1], "'language'", required=True)
+            if value is not None and not _LANGUAGE.match(value):
+                self.problem(_line(top["language"][1]),
+                             f"'language' must be a language code such as 'en', found '{value}'")
+            language = (value or "en").lower()
+        window, inflect = DEFAULT_NEGATION_WINDOW, True
+        if "settings" in top:
+            window, inflect = self.settings(top["settings"][1])
+        themes: list[Theme] = []
+        id_nodes: dict[str, yaml.Node] = {}
+        parent_nodes: dict[str, yaml.Node] = {}
+        if "themes" not in top:
+            self.missing(root, "themes", "missing key 'themes' (the list of themes) at the top level")
+        else:
+            node = top["themes"][1]
+            if not isinstance(node, yaml.SequenceNode) or not node.value:
+                self.problem(_line(node), "'themes' must be a list of themes, each starting with "
+                                          f"'- id: ...'; found {_kind(node)}")
+            else:
+                for item in node.value:
+                    theme = self.theme(item, inflect, id_nodes, parent_nodes)
+                    if theme is not None:
+                        themes.append(theme)
+        self.hierarchy(themes, parent_nodes)
+        if self.problems or name is None:
+            return None
+        return Lexicon(name=name, version=version or "", language=language, themes=tuple(themes),
+                       negation_window=window, source=source, sha256=sha256)
+
+    def settings(self, node: yaml.Node) -> tuple[int, bool]:
+        window, inflect = DEFAULT_NEGATION_WINDOW, True
+        if not isinstance(node, yaml.MappingNode):
+            if not (isinstance(node, yaml.ScalarNode) and node.tag == _NULL_TAG):
+                self.problem(_line(node), f"'settings' must be a mapping with keys "
+                                          f"{', '.join(_SETTINGS_KEYS)}; found {_kind(node)}")
+            return window, inflect
+        entries = self.mapping(node, _SETTINGS_KEYS, "in 'settings'")
+        if "negation_window" in entries:
+            value = self.integer(entries["negation_window"][1], "'negation_window'",
+                                 *NEGATION_WINDOW_RANGE)
+            window = window if value is None else value
+        if "inflect" in entries:
+            value = self.boolean(entries["inflect"][1], "'inflect' in 'settings'")
+            inflect = inflect if value is None else value
+        return window, inflect
+
+    def theme(self, node: yaml.Node, default_inflect: bool, id_nodes: dict[str, yaml.Node],
+              parent_nodes: dict[str, yaml.Node]) -> Theme | None:
+        if not isinstance(node, yaml.MappingNode):
+            self.problem(_line(node), f"each theme must be a mapping starting with '- id: ...'; "
+                                      f"found {_kind(node)}")
+            return None
+        raw_id = next((value.value for key, value in node.value
+                       if isinstance(key, yaml.ScalarNode) and key.value == "id"
+                       and isinstance(value, yaml.ScalarNode) and value.value), None)
+        entries = self.mapping(node, _THEME_KEYS, f"in theme '{raw_id}'" if raw_id else "in a theme")
+        theme_id = None
+        if "id" not in entries:
+            self.missing(node, "id", "theme without 'id'; add 'id: some_name'")
+        else:
+            value_node = entries["id"][1]
+            theme_id = self.text(value_node, "the theme 'id'", required=True)
+            if theme_id is not None and not _ID.match(theme_id):
+                self.problem(_line(value_node), f"theme id '{theme_id}' must start with a lower-case "
+                                                "letter and hold only a-z, 0-9 and '_'")
+                theme_id = None
+            elif theme_id is not None and theme_id in id_nodes:
+                self.problem(_line(value_node), f"theme id '{theme_id}' is used twice "
+                                                f"(first at line {_line(id_nodes[theme_id])})")
+                theme_id = None
+            elif theme_id is not None:
+                id_nodes[theme_id] = value_node
+        where = f"theme '{theme_id}'" if theme_id else f"the theme at line {_line(node)}"
+        label = None
+        if "label" not in entries:
+            self.missing(node, "label", f"{where} has no 'label'; add 'label: Some label'")
+        else:
+            label = self.text(entries["label"][1], f"the 'label' of {where}", required=True)
+        about = self.text(entries["about"][1], f"the 'about' of {where}") if "about" in entries else ""
+        parent = None
+        if "parent" in entries:
+            parent = self.text(entries["parent"][1], f"the 'parent' of {where}")
+            if parent and theme_id:
+                parent_nodes[theme_id] = entries["parent"][1]
+        negated = "drop"
+        if "negated" in entries:
+            value = self.text(entries["negated"][1], f"'negated' of {where}", required=True)
+            if value is not None and value not in NEGATED_POLICIES:
+                self.problem(_line(entries["negated"][1]),
+                             f"'negated' of {where} must be 'drop' (negated mentions don't count) or "
+                             f"'keep' (they do), found '{value}'")
+            elif value is not None:
+                negated = value
+        inflect = default_inflect
+        if "inflect" in entries:
+            value = self.boolean(entries["inflect"][1], f"'inflect' of {where}")
+            inflect = inflect if value is None else value
+        terms: tuple[Term, ...] = ()
+        if "terms" not in entries:
+            self.missing(node, "terms", f"{where} has no 'terms'; list at least one term")
+        else:
+            terms = self.terms(entries["terms"][1], inflect, f"'terms' of {where}", need_one=True)
+        exclusions: tuple[Term, ...] = ()
+        if "exclude" in entries:
+            exclusions = self.terms(entries["exclude"][1], inflect, f"'exclude' of {where}",
+                                    need_one=False)
+        if theme_id is None or label is None:
+            return None
+        return Theme(id=theme_id, label=label, about=about or "", parent=parent or None, terms=terms,
+                     exclusions=exclusions, negated=negated, line=_line(node))
+
+    def terms(self, node: yaml.Node, inflect: bool, where: str, need_one: bool) -> tuple[Term, ...]:
+        if isinstance(node, yaml.ScalarNode) and node.tag == _NULL_TAG and node.style is None:
+            if need_one:
+                self.problem(_line(node), f"{where} is empty; list at least one term")
+            return ()
+        if not isinstance(node, yaml.SequenceNode):
+            self.problem(_line(node), f"{where} must be a list, one term per line starting with '- '; "
+                                      f"found {_kind(node)}")
+            return ()
+        if need_one and not node.value:
+            self.problem(_line(node), f"{where} is empty; list at least one term")
+        kept: dict[tuple[str, ...], Term] = {}
+        for item in node.value:
+            term = self.term(item, inflect, where)
+            if term is not None and term.words not in kept:
+                kept[term.words] = term
+        return tuple(kept.values())
+
+    def term(self, node: yaml.Node, inflect: bool, where: str) -> Term | None:
+        text_node = node
+        if isinstance(node, yaml.MappingNode):
+            entries = self.mapping(node, _TERM_KEYS, f"in a term of {where}")
+            if "term" not in entries:
+                self.problem(_line(node), f"a term written as a mapping in {where} needs 'term: ...'")
+                return None
+            text_node = entries["term"][1]
+            if "inflect" in entries:
+                value = self.boolean(entries["inflect"][1], f"'inflect' of a term in {where}")
+                inflect = inflect if value is None else value
+        elif not isinstance(node, yaml.ScalarNode):
+            self.problem(_line(node), f"a term in {where} must be text, found {_kind(node)} "
+                                      "(remove the extra '-' or brackets)")
+            return None
+        if not isinstance(text_node, yaml.ScalarNode):
+            self.problem(_line(text_node), f"a term in {where} must be text, found {_kind(text_node)}")
+            return None
+        is_null = text_node.tag == _NULL_TAG and text_node.style is None
+        text = "" if is_null else text_node.value
+        if not text.strip():
+            self.problem(_line(text_node), f"empty term in {where}; write a word or phrase after '- '")
+            return None
+        words, message = term_words(text)
+        if message:
+            self.problem(_line(text_node), f"term '{text}' in {where}: {message}")
+            return None
+        return Term(text=text, words=words, inflect=inflect, line=_line(text_node))
+
+    def hierarchy(self, themes: list[Theme], parent_nodes: dict[str, yaml.Node]) -> None:
+        known = {theme.id for theme in themes}
+        parents: dict[str, str] = {}
+        for theme in themes:
+            if theme.parent is None or theme.id not in parent_nodes:
+                continue
+            node = parent_nodes[theme.id]
+            if theme.parent not in known:
+                self.problem(_line(node), f"parent '{theme.parent}' of theme '{theme.id}' is not a theme "
+                                          f"id in this lexicon{_suggest(theme.parent, known)}")
+            else:
+                parents[theme.id] = theme.parent
+        reported: set[str] = set()
+        for theme in themes:  # file order, so each cycle is reported at its first member
+            path = [theme.id]
+            while path[-1] in parents and parents[path[-1]] not in path:
+                path.append(parents[path[-1]])
+            if path[-1] in parents and parents[path[-1]] == theme.id and theme.id not in reported:
+                reported.update(path)
+                cycle = " -> ".join([*path, theme.id])
+                self.problem(_line(parent_nodes[theme.id]),
+                             f"circular parents: {cycle}; a theme cannot be its own ancestor")
+
+
+def term_words(text: str) -> tuple[tuple[str, ...], str | None]:
+    """Split a term into normalised words, checking wildcards.
+
+    Parameters
+    ----------
+    text : str
+        The term as written, e.g. ``"Long queu*"``.
+
+    Returns
+    -------
+    words : tuple of str
+        Normalised tokens; a wildcard word keeps its trailing ``"*"``
+        (``("long", "queu*")``). Empty when ``message`` is set.
+    message : str or None
+        Why the term is malformed, or None.
+    """
+    words: list[str] = []
+    for piece in normalise(text).split():
+        stars = piece.count("*")
+        if not stars:
+            words.extend(word_tokens(piece))
+            continue
+        if piece == "*" * stars:
+            return (), ("a lone '*' would match every word; put at least "
+                        f"{MIN_PREFIX} letters before it, as in 'queu*'")
+        if stars > 1 or not piece.endswith("*"):
+            return (), f"'*' may only end a word, once, as in 'queu*' (found '{piece}')"
+        body = piece[:-1]
+        tokens = word_tokens(body)
+        if not tokens or not _WORD_CHAR.match(body[-1]):
+            return (), f"'*' must follow the letters of a word, as in 'queu*' (found '{piece}')"
+        if len(tokens[-1]) < MIN_PREFIX:
+            return (), (f"a wildcard needs at least {MIN_PREFIX} characters before '*' "
+                        f"(found '{piece}'), or it matches too many words")
+        words.extend(tokens[:-1])
+        words.append(tokens[-1] + "*")
+    if not words:
+        return (), "it has no words once punctuation is removed"
+    return tuple(words), None
+
+
+# --- lint -------------------------------------------------------------------------
+
+
+@lru_cache(maxsize=8)
+def _stemmer(language: str):
+    """Snowball stem function for ``language``, or None (lint then compares words only)."""
+    name = _SNOWBALL_LANGUAGES.get(language.split("-")[0].split("_")[0].lower())
+    if name is None:
+        return None
+    from nltk.stem.snowball import SnowballStemmer  # slow import: only when linting
+
+    return lru_cache(maxsize=None)(SnowballStemmer(name).stem)
+
+
+def _word_keys(term: Term, stem) -> tuple[tuple[str, str], ...]:
+    """How each word matches: ("prefix", p), ("stem", s) or ("exact", w)."""
+    keys = []
+    for word in term.words:
+        if word.endswith("*"):
+            keys.append(("prefix", word[:-1]))
+        elif term.inflect and stem is not None:
+            keys.append(("stem", stem(word)))
+        else:
+            keys.append(("exact", word))
+    return tuple(keys)
+
+
+def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_words, stem) -> bool:
+    """Does every text matched by term ``a`` include the texts matched by term ``b``?"""
+    if len(a) != len(b):
+        return False
+    for (kind_a, value_a), (kind_b, value_b), word_b in zip(a, b, b_words, strict=True):
+        if kind_a == "prefix":
+            if kind_b == "prefix":
+                ok = value_b.startswith(value_a)
+            else:  # for a stem, the word as written (its other forms mostly share the prefix)
+                ok = (word_b if kind_b == "stem" else value_b).startswith(value_a)
+        elif kind_a == "stem":
+            ok = kind_b != "prefix" and (value_b if kind_b == "stem" else stem(value_b)) == value_a
+        else:
+            ok = kind_b == "exact" and value_a == value_b
+        if not ok:
+            return False
+    return True
+
+
+def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | None = None,
+                 theme_hits: Mapping[str, int] | None = None) -> pd.DataFrame:
+    """Notes on a valid lexicon that are worth a researcher's look (not errors).
+
+    Kinds
+    -----
+    shared_term
+        A term matches the same words as a term of another theme, and neither
+        theme is an ancestor of the other (one answer would count for both).
+        Inflection twins (``queue`` / ``queues`` with ``inflect``, by the
+        Snowball stemmer of the lexicon's language) and wildcards covering a
+        whole term (``toilet*`` / ``toilets``) count as the same.
+    redundant
+        Within one theme, every match of a term is already a match of another
+        term: a wildcard or an inflection twin covers it, or a phrase always
+        contains another term (unless, for ``negated: drop``, a negation cue
+        in the phrase precedes that term: "not clean" is needed beside
+        "clean*"). A term of a theme that is also matched by a term of its
+        descendant is redundant too (the child's hits roll up).
+    vetoed_term
+        An exclusion of the theme matches inside every match of a term, so the
+        term can never count (often an exclusion that inflects: "books" also
+        vetoes "booked").
+    unused_term
+        With ``term_hits``: terms with no hits (missing counts as 0).
+    no_hits
+        With ``theme_hits``: themes that coded no response.
+
+    Parameters
+    ----------
+    lexicon : Lexicon
+    term_hits : mapping of (theme_id, term_text) to int, optional
+        Hits per term, e.g. from the coding engine's evidence; ``term_text`` is
+        ``Term.text``.
+    theme_hits : mapping of theme_id to int, optional
+        Responses coded per theme.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``kind, theme, term, line, detail``; one row per note, sorted
+        by kind (in :data:`LINT_KINDS` order) then line. ``term`` is "" for
+        ``no_hits``.
+    """
+    import pandas as pd
+
+    stem = _stemmer(lexicon.language)
+    rows: list[tuple[str, str, str, int, str]] = []
+    entries = [(theme, term, _word_keys(term, stem)) for theme in lexicon.themes for term in theme.terms]
+    related = {theme.id: {theme.id, *lexicon.ancestors(theme.id)} for theme in lexicon.themes}
+
+    # Candidate pairs (covering, covered): same length and a first word that can match the same
+    # tokens (the same stem, or starting with a wildcard's prefix).
+    def first_key(keys: tuple[tuple[str, str], ...]) -> tuple[str, str]:
+        kind, value = keys[0]
+        return ("stem", stem(value)) if kind == "exact" and stem is not None else (kind, value)
+
+    by_first: dict[tuple[int, tuple[str, str]], list[int]] = {}
+    for index, (_, term, keys) in enumerate(entries):
+        by_first.setdefault((len(term.words), first_key(keys)), []).append(index)
+    first_words = sorted((term.words[0].rstrip("*"), index) for index, (_, term, _) in enumerate(entries))
+    pairs: set[tuple[int, int]] = set()
+    for a, (_, term, keys) in enumerate(entries):
+        if keys[0][0] == "prefix":
+            start = bisect.bisect_left(first_words, (keys[0][1], -1))
+            candidates = []
+            for word, b in first_words[start:]:
+                if not word.startswith(keys[0][1]):
+                    break
+                candidates.append(b)
+        else:
+            candidates = by_first.get((len(term.words), first_key(keys)), [])
+        pairs.update((a, b) for b in candidates
+                     if b != a and _covers(keys, entries[b][2], entries[b][1].words, stem))
+
+    reported: set[int] = set()
+    for a, b in sorted(pairs, key=lambda pair: (entries[pair[1]][1].line, pair[1], entries[pair[0]][1].line,
+                                                 pair[0])):
+        (theme_a, term_a, _), (theme_b, term_b, _) = entries[a], entries[b]
+        hierarchy = theme_a.id != theme_b.id and (theme_b.id in related[theme_a.id]
+                                                  or theme_a.id in related[theme_b.id])
+        if b in reported or (not hierarchy and (b, a) in pairs and (term_b.line, b) < (term_a.line, a)):
+            continue  # the same match set in both: note the later term only
+        if theme_a.id == theme_b.id:
+            detail = f"already matched by '{term_a.text}' (line {term_a.line})"
+        elif theme_b.id in related[theme_a.id]:  # a hit of the descendant counts for theme_b anyway
+            detail = (f"already matched by '{term_a.text}' (line {term_a.line}) in theme "
+                      f"'{theme_a.id}', whose hits count for '{theme_b.id}'")
+        elif theme_a.id in related[theme_b.id]:
+            continue  # the child repeats a parent's term to attribute it: intended
+        else:
+            where = f"'{term_a.text}' in theme '{theme_a.id}' (line {term_a.line})"
+            how = (f"also a term of theme '{theme_a.id}' (line {term_a.line})" if term_a.words == term_b.words
+                   else f"same as {where} once inflections match" if (b, a) in pairs
+                   else f"also matched by {where}")
+            rows.append(("shared_term", theme_b.id, term_b.text, term_b.line,
+                         f"{how}; neither theme is an ancestor of the other"))
+            reported.add(b)
+            continue
+        rows.append(("redundant", theme_b.id, term_b.text, term_b.line, detail))
+        reported.add(b)
+
+    # A phrase of a theme that always contains a match of another term of the same theme adds
+    # nothing, unless (negated: drop) a negation cue inside the phrase precedes that term.
+    position = {id(term): index for index, (_, term, _) in enumerate(entries)}
+    for theme in lexicon.themes:
+        for phrase in theme.terms:
+            if not phrase.is_phrase or position[id(phrase)] in reported:
+                continue
+            phrase_keys = entries[position[id(phrase)]][2]
+            for term in theme.terms:
+                size = len(term.words)
+                if size >= len(phrase.words):
+                    continue
+                keys = entries[position[id(term)]][2]
+                hit = next((offset for offset in range(len(phrase.words) - size + 1)
+                            if _covers(keys, phrase_keys[offset:offset + size],
+                                       phrase.words[offset:offset + size], stem)
+                            and (theme.negated == "keep"
+                                 or not any(is_negation_cue(word) for word in phrase.words[:offset]))),
+                           None)
+                if hit is not None:
+                    rows.append(("redundant", theme.id, phrase.text, phrase.line,
+                                 f"always contains a match of '{term.text}' (line {term.line})"))
+                    reported.add(position[id(phrase)])
+                    break
+
+    # An exclusion that is part of every match of a term vetoes that term for good.
+    for theme in lexicon.themes:
+        exclusion_keys = [(exclusion, _word_keys(exclusion, stem)) for exclusion in theme.exclusions]
+        for term in theme.terms:
+            if position[id(term)] in reported:
+                continue
+            term_keys = entries[position[id(term)]][2]
+            for exclusion, keys in exclusion_keys:
+                size = len(keys)
+                if any(_covers(keys, term_keys[offset:offset + size], term.words[offset:offset + size], stem)
+                       for offset in range(len(term.words) - size + 1)):
+                    rows.append(("vetoed_term", theme.id, term.text, term.line,
+                                 f"every match is vetoed by the exclusion '{exclusion.text}' "
+                                 f"(line {exclusion.line}); remove one or set inflect: false on it"))
+                    break
+
+    if term_hits is not None:
+        for theme, term, _ in entries:
+            if not term_hits.get((theme.id, term.text), 0):
+                rows.append(("unused_term", theme.id, term.text, term.line, "no hits"))
+    if theme_hits is not None:
+        for theme in lexicon.themes:
+            if not theme_hits.get(theme.id, 0):
+                rows.append(("no_hits", theme.id, "", theme.line, "coded no response"))
+
+    frame = pd.DataFrame(rows, columns=list(LINT_COLUMNS))
+    frame = frame.astype({"kind": "object", "theme": "object", "term": "object", "line": "int64",
+                          "detail": "object"})
+    order = frame["kind"].map({kind: i for i, kind in enumerate(LINT_KINDS)})
+    frame = frame.assign(_order=order).sort_values(["_order", "line", "theme", "term"], kind="stable")
+    return frame.drop(columns="_order").reset_index(drop=True)
+
+
+_KIND_TITLES = {
+    "shared_term": "Terms shared by unrelated themes",
+    "redundant": "Redundant terms (already matched by another term of the theme)",
+    "vetoed_term": "Terms that an exclusion of their own theme always vetoes",
+    "unused_term": "Terms that matched no answer",
+    "no_hits": "Themes that coded no response",
+}
+
+
+def format_lint(frame: pd.DataFrame) -> str:
+    """Human-readable report of :func:`lint_lexicon`'s table (ends with a newline)."""
+    if frame.empty:
+        return "Lexicon lint: nothing to report.\n"
+    lines = [f"Lexicon lint: {len(frame)} note{'s' if len(frame) != 1 else ''}."]
+    known = [kind for kind in LINT_KINDS if kind in set(frame["kind"])]
+    others = sorted(set(frame["kind"]) - set(known))
+    for kind in known + others:
+        part = frame[frame["kind"] == kind]
+        lines.append("")
+        lines.append(f"{_KIND_TITLES.get(kind, kind)} ({len(part)}):")
+        for row in part.itertuples(index=False):
+            what = f"{row.theme}: '{row.term}'" if row.term else row.theme
+            lines.append(f"  line {row.line:>4}  {what} - {row.detail}")
+    return "\n".join(lines) + "\n"
