@@ -141,6 +141,8 @@ def main() -> None:
     print(f"{n:,} answers, mean {n_words:.1f} words; lexicon {len(lexicon.themes)} themes x "
           f"{len(lexicon.themes[0].terms)} terms")
 
+    # warm-up on a few answers, so one-off imports (nltk's stemmer) are not timed
+    ThemeCoder(lexicon).fit(answers[:50]).code(answers[:50])
     baseline, _ = time_it(lambda: [re.findall(r"\w+", text.lower()) for text in answers])
 
     def code_with_evidence():

@@ -326,8 +326,12 @@ def test_bad_input_is_a_precise_error():
     with pytest.raises(AnalysisError, match="group 'cruise' has no responses"):
         prevalence(empty, ["parking"], design, groups=["market"])
     bad = coded.copy()
-    bad.loc[3, "weight"] = -2.0
-    with pytest.raises(DesignError, match="negative"):
+    bad.loc[bad.response_id == "v3", "weight"] = -2.0
+    with pytest.raises(DesignError, match="negative") as error:
+        SurveyDesign.from_frame(bad, "weight", "zone", "site", id="response_id")
+    assert error.value.row == 4 and error.value.column == "weight"
+    bad.loc[bad.response_id == "v3", "weight"] = np.nan
+    with pytest.raises(DesignError, match="missing"):
         SurveyDesign.from_frame(bad, "weight", "zone", "site", id="response_id")
     assert issubclass(AnalysisError, TextkitError)
 

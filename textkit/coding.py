@@ -343,6 +343,7 @@ class ThemeCoder:
         self._compiled = _compile(self.lexicon)
         self._stem_cache: dict[str, str] = {}
         pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._stem_cache)
+        self._fitted_patterns = pattern_matrix
         per_pattern = np.asarray(pattern_matrix.sum(axis=0)).ravel()
         compiled = self._compiled
         matches = [int(per_pattern[ids[ids >= 0]].sum()) for ids in compiled.term_patterns]
@@ -392,7 +393,10 @@ class ThemeCoder:
             stream = tokenize_corpus(texts, offsets=evidence)
         compiled = self._compiled
         n_themes = len(self.lexicon.themes)
-        pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache)
+        if stream.vocabulary is self.vocabulary_:  # coding the fitted documents themselves
+            pattern_matrix = self._fitted_patterns
+        else:
+            pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache)
         start, term = _match_terms(stream, compiled, pattern_matrix)
         theme = compiled.term_theme[term]
         length = compiled.term_lengths[term]

@@ -99,6 +99,9 @@ def write_outputs(out_dir: str | Path, files: Mapping[str, Writer],
         full["files"] = sorted(plan)
         plan["manifest.json"] = json_writer(full)
     staged: list[tuple[Path, Path]] = []
+    umask = os.umask(0o022)
+    os.umask(umask)
+    mode = 0o666 & ~umask  # mkstemp makes 0600 files; give them the mode a plain open() would
     try:
         for name, writer in plan.items():
             handle, temp_name = tempfile.mkstemp(prefix=f".{name}.", suffix=".part", dir=out)
@@ -106,6 +109,7 @@ def write_outputs(out_dir: str | Path, files: Mapping[str, Writer],
             temp = Path(temp_name)
             staged.append((temp, out / name))
             writer(temp)
+            os.chmod(temp, mode)
     except BaseException:
         for temp, _ in staged:
             temp.unlink(missing_ok=True)

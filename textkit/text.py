@@ -261,9 +261,51 @@ def prepare_corpus(texts: Sequence[str | None]) -> tuple[str, dict[int, np.ndarr
 _SPLIT_PATTERN = re.compile(f"({TOKEN_PATTERN.pattern})")
 
 
+#: Documents tokenised per batch: bounds the memory held by Python token lists.
+BATCH_SIZE = 20_000
+
+
+def _tokenize_batch(texts: list, index: dict[str, int], offsets: bool):
+    """Codes (first-seen numbering in ``index``, grown in place), token counts, spans."""
+    corpus, origins = prepare_corpus(texts)
+    if offsets:
+        pieces = _SPLIT_PATTERN.split(corpus)  # gap, token, gap, token, ..., gap
+        tokens = pieces[1::2]
+    else:
+        tokens = TOKEN_PATTERN.findall(corpus)
+    # dict.fromkeys keeps first-seen order; map over a C method avoids a Python loop body
+    for token in dict.fromkeys(tokens):
+        if token not in index:
+            index[token] = len(index)
+    raw = np.fromiter(map(index.__getitem__, tokens), dtype=np.int32, count=len(tokens))
+    del tokens
+    separator = raw == 0
+    doc_of_token = np.cumsum(separator, dtype=np.int64)
+    keep = ~separator
+    counts = np.bincount(doc_of_token[keep], minlength=len(texts))
+    starts = ends = None
+    if offsets:
+        gap_lengths = np.fromiter(map(len, pieces[0::2]), dtype=np.int64, count=len(raw) + 1)
+        del pieces
+        token_lengths = np.fromiter(map(len, index), dtype=np.int64, count=len(index))[raw]
+        corpus_starts = np.cumsum(gap_lengths[:-1]) + np.cumsum(token_lengths) - token_lengths
+        doc_starts = np.concatenate([[0], corpus_starts[separator] + 1])
+        starts = (corpus_starts - doc_starts[doc_of_token])[keep]
+        ends = starts + token_lengths[keep]
+        if origins:
+            offsets_in_batch = np.concatenate([[0], np.cumsum(counts)])
+            for number, origin in origins.items():
+                span = slice(offsets_in_batch[number], offsets_in_batch[number + 1])
+                starts[span] = origin[starts[span]]
+                ends[span] = origin[ends[span]]
+        starts = starts.astype(np.int32)
+        ends = ends.astype(np.int32)
+    return raw[keep], counts, starts, ends
+
+
 def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None], *,
                     offsets: bool = True) -> TokenStream:
-    """Tokenise all ``texts`` in one pass.
+    """Tokenise all ``texts`` (one regular-expression pass, in batches).
 
     Parameters
     ----------
@@ -277,41 +319,19 @@ def tokenize_corpus(texts: Sequence[str | None] | Iterable[str | None], *,
     TokenStream
     """
     texts = list(texts)
-    corpus, origins = prepare_corpus(texts)
-    if offsets:
-        pieces = _SPLIT_PATTERN.split(corpus)  # gap, token, gap, token, ..., gap
-        tokens = pieces[1::2]
-    else:
-        tokens = TOKEN_PATTERN.findall(corpus)
-    # dict.fromkeys keeps first-seen order; map over a C method avoids a Python loop body
-    seen = dict.fromkeys([DOCUMENT_SEPARATOR])
-    seen.update(dict.fromkeys(tokens))
-    index = {token: number for number, token in enumerate(seen)}
-    raw = np.fromiter(map(index.__getitem__, tokens), dtype=np.int32, count=len(tokens))
-    del tokens, seen
-    separator = raw == 0
-    doc_of_token = np.cumsum(separator, dtype=np.int64)
-    keep = ~separator
-    counts = np.bincount(doc_of_token[keep], minlength=len(texts)) if len(texts) else np.zeros(0, np.int64)
+    index: dict[str, int] = {DOCUMENT_SEPARATOR: 0}
+    parts = [_tokenize_batch(texts[at:at + BATCH_SIZE], index, offsets)
+             for at in range(0, len(texts), BATCH_SIZE)]
+    raw = np.concatenate([p[0] for p in parts]) if parts else np.zeros(0, np.int32)
+    counts = np.concatenate([p[1] for p in parts]) if parts else np.zeros(0, np.int64)
     doc_offsets = np.zeros(len(texts) + 1, dtype=np.int64)
     np.cumsum(counts, out=doc_offsets[1:])
-    first_seen = np.array(list(index), dtype=object)
     starts = ends = None
     if offsets:
-        gap_lengths = np.fromiter(map(len, pieces[0::2]), dtype=np.int64, count=len(raw) + 1)
-        del pieces
-        token_lengths = np.fromiter(map(len, first_seen), dtype=np.int64, count=len(first_seen))[raw]
-        corpus_starts = np.cumsum(gap_lengths[:-1]) + np.cumsum(token_lengths) - token_lengths
-        doc_starts = np.concatenate([[0], corpus_starts[separator] + 1])
-        starts = (corpus_starts - doc_starts[doc_of_token])[keep]
-        ends = starts + token_lengths[keep]
-        for number, origin in origins.items():
-            span = slice(doc_offsets[number], doc_offsets[number + 1])
-            starts[span] = origin[starts[span]]
-            ends[span] = origin[ends[span]]
-        starts = starts.astype(np.int32)
-        ends = ends.astype(np.int32)
-    raw = raw[keep]
+        starts = np.concatenate([p[2] for p in parts]) if parts else np.zeros(0, np.int32)
+        ends = np.concatenate([p[3] for p in parts]) if parts else np.zeros(0, np.int32)
+    del parts
+    first_seen = np.array(list(index), dtype=object)
     order = np.argsort(first_seen[1:], kind="stable")  # sorted vocabulary, separator dropped
     remap = np.empty(len(first_seen), dtype=np.int32)
     remap[0] = -1
