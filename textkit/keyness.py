@@ -294,7 +294,10 @@ def _class_sums(mats: _Matrices, classes: np.ndarray, n_classes: int, columns: n
 
 def _collapse(parts: tuple[np.ndarray, np.ndarray], tested: np.ndarray, z: np.ndarray, y_g, y_r,
               n_g, n_r, strength: float, z_critical: float) -> np.ndarray:
-    """Terms whose keyness a significant phrase on the same side explains (bool, n_terms)."""
+    """Terms whose keyness a significant phrase on the same side explains (bool, n_terms).
+
+    ``tested`` marks the terms that may be reported; only those can explain others.
+    """
     phrase, part = parts
     side = np.sign(z)
     usable = (tested[phrase] & tested[part] & (side[phrase] == side[part]) & (side[phrase] != 0)
@@ -344,7 +347,8 @@ def _score(terms: np.ndarray, n_words: np.ndarray, y_g: np.ndarray, y_r: np.ndar
     keep = np.ones(len(index), dtype=bool)
     if options.phrase_handling == "collapse" and parts is not None and len(parts[0]):
         z_critical = float(stats.norm.ppf(1 - options.alpha / 2))
-        explained = _collapse(parts, tested, z, y_g, y_r, n_g, n_r, strength, z_critical)[index]
+        reportable = tested if eligible is None else tested & eligible
+        explained = _collapse(parts, reportable, z, y_g, y_r, n_g, n_r, strength, z_critical)[index]
         summary["explained_by_phrase"] = int(explained.sum())
         keep &= ~explained
     if eligible is not None:
@@ -578,8 +582,8 @@ def compare(
     DataFrame
         :data:`KEYNESS_COLUMNS`. ``attrs["summary"]`` sums the counters of all
         comparisons (plus ``comparisons``), ``attrs["skipped"]`` lists groups
-        left out because they had no answers there (the rest-of-variable and
-        wave comparisons only; an explicit pair with an empty side is an error).
+        left out because they had no answers there (an explicit pair with an
+        empty side is an error, except within a theme, where it is skipped).
 
     Raises
     ------
@@ -670,10 +674,15 @@ def compare(
                 if pair_variable != variable:
                     continue
                 g, r = value_index[str(group)], value_index[str(reference)]
-                for value, index in ((group, g), (reference, r)):
-                    if counts.documents[index] == 0:
-                        raise AnalysisError(f"group '{value}' of '{variable}' has no answers{where}; "
-                                            "nothing to compare", column=str(variable))
+                empty = [value for value, index in ((group, g), (reference, r))
+                         if counts.documents[index] == 0]
+                if empty and theme:
+                    skipped.append(f"{variable}={empty[0]} vs {reference if empty[0] == group else group}"
+                                   f"{where}: no answers")
+                    continue
+                if empty:
+                    raise AnalysisError(f"group '{empty[0]}' of '{variable}' has no answers; nothing to "
+                                        "compare", column=str(variable))
                 jobs.append((g, r))
             for g, r in dict.fromkeys(jobs):
                 frame, summary = _score(sub_terms, sub_words, *_sides(counts, g, r), options, parts)
