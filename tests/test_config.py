@@ -77,7 +77,9 @@ def test_full_config_fields_and_relative_paths(tmp_path):
 def test_roles_are_json_serialisable_and_design_columns_unique(tmp_path):
     config = load_config(write(tmp_path, FULL))
     roles = config.roles()
-    assert set(roles) == {"id", "questions", "weight", "strata", "cluster", "fpc", "wave", "groups"}
+    assert set(roles) == {"id", "questions", "weight", "strata", "cluster", "fpc", "single_psu", "nest",
+                          "wave", "groups"}
+    assert roles["single_psu"] == config.single_psu and roles["nest"] is False
     assert json.loads(json.dumps(roles)) == roles
     assert roles["groups"] == ["market", "age_band", "stratum"]
     # stratum is both a design column and a group: listed once
@@ -90,6 +92,7 @@ def test_defaults(tmp_path):
     assert config.questions == {"comment": "comment"}
     assert config.weight is None and config.strata is None and config.fpc is None
     assert config.single_psu == "error"
+    assert config.nest is False
     assert config.groups == ()
     assert config.lexicon is None
     assert config.seed == 0
@@ -253,3 +256,12 @@ def test_normalise_answer():
     assert normalise_answer("  No \t Comment\n") == "no comment"
     assert normalise_answer("N/A\u00a0") == "n/a"
     assert normalise_answer("Nil") == normalise_answer("NIL") == "nil"
+
+
+def test_design_nest_flag(tmp_path):
+    text = MINIMAL + "design:\n  nest: true\n"
+    assert load_config(write(tmp_path, text)).nest is True
+    bad = MINIMAL + "design:\n  nest: sometimes\n"
+    with pytest.raises(InputError, match=r"design.nest' must be true or false") as info:
+        load_config(write(tmp_path, bad))
+    assert info.value.line == bad.count("\n")

@@ -414,15 +414,15 @@ def write_mini_survey(folder: Path) -> Path:
     """An invented two-market, two-wave survey with a one-theme lexicon."""
     rng = np.random.default_rng(23)
     rows = []
-    for i in range(120):
+    for i in range(240):
         market = "Northvale" if i % 2 else "Southmere"
-        wave = "2025" if i < 60 else "2026"
+        wave = "2025" if i < 120 else "2026"
         words = list(rng.choice(FILLER, size=4))
         if market == "Northvale" and rng.random() < 0.5:
             words += ["no", "free", "wi-fi"]
         if i % 5 == 0:
             words += ["long", "queue"]
-        if wave == "2026" and rng.random() < 0.4:
+        if wave == "2026" and i % 5 != 0 and rng.random() < 0.5:  # a new topic, no lexicon theme
             words += ["drones", "buzzing"]
         rows.append({"response_id": f"R{i:03d}", "wave": wave, "market": market,
                      "weight": round(float(rng.uniform(0.5, 2.0)), 3), "low_point": " ".join(words)})
@@ -443,12 +443,12 @@ def test_cli_keyness_and_suggest(tmp_path, capsys):
     config = write_mini_survey(tmp_path)
     out = tmp_path / "out"
     assert main(["keyness", str(config), "--out", str(out), "--max-terms", "5", "--theme", "queues"]) == 0
-    table = pd.read_csv(out / "keyness.csv", keep_default_na=False)
+    table = pd.read_csv(out / "keyness.csv", keep_default_na=False, dtype={"group": str, "reference": str})
     assert list(table.columns) == KEYNESS_COLUMNS
     north = table[(table["group"] == "Northvale") & (table["reference"] == REST)
                   & (table["within_theme"] == "")]
     assert north[north["z"] > 0]["term"].iloc[0] == "no free wi-fi"
-    waves = table[(table["group_var"] == "wave") & (table["group"] == 2026) & (table["reference"] == "2025")]
+    waves = table[(table["group_var"] == "wave") & (table["group"] == "2026") & (table["reference"] == "2025")]
     assert "drones buzzing" in set(waves[waves["z"] > 0]["term"])
     assert "terms below 5 answers" in capsys.readouterr().out
     assert (out / "manifest.json").exists()

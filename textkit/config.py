@@ -13,6 +13,7 @@ Example::
       cluster: psu
       fpc: stratum_population        # population size N_h of each stratum
       single_psu: error              # error | centre | collapse
+      nest: false                    # true when cluster ids restart in each stratum
     wave: wave                       # optional
     groups: [market, age_band]       # optional
     lexicon: ../lexicons/visitor_experience.yaml
@@ -70,7 +71,7 @@ _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
     "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
 )
-_DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu")
+_DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu", "nest")
 _REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
 
 # Roles whose columns may also serve another role in this set (a stratum or wave
@@ -147,6 +148,7 @@ class SurveyConfig:
     cluster: str | None = None
     fpc: str | None = None
     single_psu: str = "error"
+    nest: bool = False
     wave: str | None = None
     groups: tuple[str, ...] = ()
     lexicon: Path | None = None
@@ -157,7 +159,8 @@ class SurveyConfig:
         """Column roles as a JSON-serialisable dict (for manifests).
 
         Keys: ``id``, ``questions`` (name -> column), ``weight``, ``strata``, ``cluster``,
-        ``fpc``, ``wave`` (str or None) and ``groups`` (list of str).
+        ``fpc``, ``single_psu``, ``nest`` (cluster ids numbered within each stratum),
+        ``wave`` (str or None) and ``groups`` (list of str).
         """
         return {
             "id": self.id_column,
@@ -166,6 +169,8 @@ class SurveyConfig:
             "strata": self.strata,
             "cluster": self.cluster,
             "fpc": self.fpc,
+            "single_psu": self.single_psu,
+            "nest": self.nest,
             "wave": self.wave,
             "groups": list(self.groups),
         }
@@ -353,6 +358,13 @@ class _Validator:
                 raise self.fail(f"'design.single_psu' must be one of {', '.join(SINGLE_PSU_POLICIES)}, "
                                 f"found {policy!r}", policy_item.line)
             out["single_psu"] = policy
+        nest_item = design.entries.get("nest", (None, None))[1]
+        out["nest"] = False
+        if nest_item is not None and nest_item.kind != "null":
+            if nest_item.kind != "scalar" or not isinstance(nest_item.value, bool):
+                raise self.fail(f"'design.nest' must be true or false, found {_describe(nest_item)}",
+                                nest_item.line)
+            out["nest"] = nest_item.value
 
         wave = entries.get("wave", _Item("null", None))
         out["wave"] = self.column(wave, "wave")

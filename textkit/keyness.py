@@ -69,11 +69,11 @@ keeps only terms with ``q_value <= alpha`` and orders them by ``|Log Ratio|``.
 
 ``phrase_handling="collapse"`` (default) avoids reporting a word only because
 a phrase holding it is key: a shorter term is dropped when some phrase that
-contains it is significant (``|z| >= z_{1 - alpha/2}``) on the same side and
-the shorter term's *remaining* counts (its counts minus the phrase's: with
+contains it leans to the same side (and passes the same filters) and the
+shorter term's *remaining* counts (its counts minus the phrase's: with
 document frequencies exactly the answers that use the word but not the phrase;
 the prior of that test is built from the remaining counts) are no longer
-significant on that side. The phrase stays. Words that are key
+significant (``z`` below ``z_{1 - alpha/2}`` on that side). The phrase stays. Words that are key
 on their own as well keep their place. ``"keep"`` reports every term.
 """
 
@@ -147,9 +147,13 @@ def log_odds_dirichlet(y_group, y_reference, n_group, n_reference, alpha_w, alph
     y_group, y_reference = np.asarray(y_group, float), np.asarray(y_reference, float)
     a_group = y_group + alpha_w
     a_reference = y_reference + alpha_w
-    delta = (np.log(a_group) - np.log(np.asarray(n_group, float) + alpha_0 - a_group)
-             - np.log(a_reference) + np.log(np.asarray(n_reference, float) + alpha_0 - a_reference))
-    return delta, 1.0 / a_group + 1.0 / a_reference
+    rest_group = np.asarray(n_group, float) + alpha_0 - a_group
+    rest_reference = np.asarray(n_reference, float) + alpha_0 - a_reference
+    with np.errstate(divide="ignore", invalid="ignore"):
+        delta = np.log(a_group) - np.log(rest_group) - np.log(a_reference) + np.log(rest_reference)
+        # a term in every answer of both sides has no "other" outcome left: no difference
+        delta = np.where((rest_group <= 0) & (rest_reference <= 0), 0.0, delta)
+        return delta, 1.0 / a_group + 1.0 / a_reference
 
 
 def g_squared(y_group, y_reference, n_group, n_reference) -> np.ndarray:
@@ -294,14 +298,13 @@ def _class_sums(mats: _Matrices, classes: np.ndarray, n_classes: int, columns: n
 
 def _collapse(parts: tuple[np.ndarray, np.ndarray], tested: np.ndarray, z: np.ndarray, y_g, y_r,
               n_g, n_r, strength: float, z_critical: float) -> np.ndarray:
-    """Terms whose keyness a significant phrase on the same side explains (bool, n_terms).
+    """Terms whose keyness a phrase on the same side explains (bool, n_terms).
 
     ``tested`` marks the terms that may be reported; only those can explain others.
     """
     phrase, part = parts
     side = np.sign(z)
-    usable = (tested[phrase] & tested[part] & (side[phrase] == side[part]) & (side[phrase] != 0)
-              & (np.abs(z[phrase]) >= z_critical))
+    usable = tested[phrase] & tested[part] & (side[phrase] == side[part]) & (side[phrase] != 0)
     phrase, part = phrase[usable], part[usable]
     rest_g = np.maximum(y_g[part] - y_g[phrase], 0.0)
     rest_r = np.maximum(y_r[part] - y_r[phrase], 0.0)
