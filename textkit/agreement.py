@@ -83,8 +83,10 @@ def agreement_table(hand: np.ndarray, machine: np.ndarray, themes: Sequence[str]
     if hand.shape != machine.shape:
         raise ValueError(f"hand codes {hand.shape} and machine codes {machine.shape} differ in shape")
     in_lexicon = list(in_lexicon) if in_lexicon is not None else [True] * len(themes)
-    precision, recall, f1, _ = precision_recall_fscore_support(hand, machine, average=None,
-                                                               zero_division=np.nan)
+    scores = np.array([precision_recall_fscore_support(hand[:, c], machine[:, c], average="binary",
+                                                       zero_division=np.nan)[:3]
+                       for c in range(hand.shape[1])], dtype=float).reshape(-1, 3)
+    precision, recall, f1 = scores.T
     both = (hand & machine).sum(axis=0)
     kappa = []
     for column in range(hand.shape[1]):

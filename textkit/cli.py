@@ -155,6 +155,49 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
     click.echo(format_lint(lint_lexicon(lex, term_hits=term_hits, theme_hits=theme_hits)))
 
 
+@cli.command("agreement")
+@click.argument("hand_coded", type=click.Path(path_type=Path))
+@click.option("--lexicon", "lexicon_path", required=True, type=click.Path(path_type=Path),
+              help="The lexicon to check.")
+@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+              help="Folder for agreement.csv and disagreements.csv.")
+@click.option("--text-column", default="text", show_default=True, help="Column holding the answers.")
+@click.option("--codes-column", default="themes", show_default=True,
+              help="Column holding the hand codes (theme ids separated by ';').")
+@click.option("--quiet", is_flag=True, help="No summary.")
+def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_column: str,
+                      codes_column: str, quiet: bool) -> None:
+    """Compare the lexicon's codes with HAND_CODED answers (precision, recall, F1, kappa)."""
+    from .agreement import compare_with_hand_codes
+    from .errors import InputError
+    from .lexicon import load_lexicon
+    from .output import csv_writer, file_sha256, write_outputs
+    from .readers import read_table
+
+    lexicon = load_lexicon(lexicon_path)
+    frame, notes = read_table(hand_coded)
+    for column in (text_column, codes_column):
+        if column not in frame.columns:
+            raise InputError(f"no column '{column}'; the columns are: {', '.join(map(str, frame.columns))}",
+                             source=hand_coded, column=column)
+    table, disagreements = compare_with_hand_codes(frame[text_column].tolist(), frame[codes_column].tolist(),
+                                                   lexicon, source=str(hand_coded))
+    manifest = {"command": "agreement",
+                "hand_coded": {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
+                "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256}, "notes": notes}
+    write_outputs(out_dir, {"agreement.csv": csv_writer(table, float_format="%.4f"),
+                            "disagreements.csv": csv_writer(disagreements)}, manifest)
+    if quiet:
+        return
+    overall = table.iloc[-1]
+    click.echo(f"{len(frame)} hand-coded answers: precision {overall.precision:.2f}, recall "
+               f"{overall.recall:.2f}, F1 {overall.f1:.2f}, kappa {overall.kappa:.2f} over all theme decisions")
+    weak = table[(table["theme"] != "(all)") & (table["hand"] >= 5) & (table["f1"].fillna(0) < 0.7)]
+    for row in weak.itertuples():
+        click.echo(f"  weak: {row.theme} (hand {row.hand}, machine {row.machine}, F1 {row.f1:.2f})")
+    click.echo(f"wrote agreement.csv and disagreements.csv ({len(disagreements)} answers differ) to {out_dir}")
+
+
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``textkit`` console script."""
     try:

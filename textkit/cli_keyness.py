@@ -206,8 +206,10 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
         order = [list(coder.themes_).index(t) for t in themes]
         return found[:, order]
 
+    wave = survey.roles.get("wave")
     table = suggest_terms(matrix, terms, n_words, survey.theme_matrix, themes, answered=answered,
-                          weights=_weights(survey, unweighted), covered=covered, max_terms=max_terms,
+                          weights=_weights(survey, unweighted), covered=covered,
+                          waves=coded[wave].to_numpy() if wave else None, max_terms=max_terms,
                           max_new_terms=max_new_terms, min_respondents=min_respondents)
     labels = {theme.id: theme.label for theme in survey.lexicon.themes}
     draft = render_suggestions_yaml(table, labels=labels, source=str(config))
@@ -221,6 +223,8 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
         return
     n_terms = int((table["kind"] == "term").sum())
     n_new = table.loc[table["kind"] == "new_theme", "theme"].nunique()
-    click.echo(f"suggest: {n_terms} candidate terms for existing themes, {n_new} draft new themes "
-               f"(from {int(answered.sum()):,} answers); nothing in the lexicon was changed")
+    n_emerging = table.loc[table["kind"] == "emerging_theme", "theme"].nunique()
+    click.echo(f"suggest: {n_terms} candidate terms for existing themes, {n_new} draft new themes, "
+               f"{n_emerging} emerging topics (from {int(answered.sum()):,} answers); nothing in the "
+               "lexicon was changed")
     click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir} - review the draft before use")

@@ -719,23 +719,35 @@ def suggest_terms(
     answered: np.ndarray | None = None,
     weights: np.ndarray | None = None,
     covered: Callable[[np.ndarray], Any] | None = None,
+    waves: np.ndarray | None = None,
     max_terms: int = 15,
     max_new_terms: int = 40,
     min_respondents: int = DEFAULT_MIN_RESPONDENTS,
+    min_share: float = 0.5,
     alpha: float = 0.05,
     prior_strength: float = DEFAULT_PRIOR_STRENGTH,
     link: float = 0.2,
 ) -> pd.DataFrame:
     """Candidate lexicon terms from keyness (nothing is changed anywhere).
 
-    * For each theme: the terms key for answers coded with the theme against
-      answered ones not coded with it, that the lexicon does not already cover
-      and that occur in at least one answer the theme misses (adding them would
-      reach new answers).
-    * Candidate new themes: the terms key for answered but uncoded answers
-      against coded ones, not covered by any theme, grouped into draft themes:
-      terms whose answers overlap (Jaccard index of their uncoded answers
-      >= ``link``) share a draft theme, named after its highest-z term.
+    * ``kind="term"``, for each theme: terms key (z > 0, ``q_value <= alpha``)
+      for answers coded with the theme against answered ones not coded with
+      it, that the lexicon does not already cover, that occur in at least one
+      answer the theme misses (adding them would reach new answers) and of
+      whose answers at least ``min_share`` are already coded with the theme
+      (so the term is specific to it, not a common word). Ranked by z.
+    * ``kind="new_theme"``: terms key for answered but uncoded answers against
+      coded ones, covered by no theme, with at least ``min_share`` of their
+      answers uncoded.
+    * ``kind="emerging_theme"`` (when ``waves`` is given): terms covered by no
+      theme that are key for the latest wave against the one before it (a
+      new topic often shares answers with known themes, so it need not show
+      among the uncoded answers).
+
+    New and emerging candidates are grouped into draft themes in rank order:
+    a term joins the first (best) earlier term whose answers overlap its own
+    with a Jaccard index >= ``link``, otherwise it starts a draft theme named
+    after itself.
 
     Parameters
     ----------
@@ -750,25 +762,30 @@ def suggest_terms(
         ``covered(terms) -> (len(terms), n_themes)`` array-like, true where a
         term would already be coded with the theme by the lexicon (for
         instance ``ThemeCoder(lexicon).fit(terms).transform(terms)``).
+    waves : ndarray of shape (n_documents,), optional
+        Wave of each answer (sortable values; missing = none).
     max_terms : int, default 15
         Candidates per existing theme.
     max_new_terms : int, default 40
-        Candidate terms for new themes (before grouping).
+        Candidate terms for new (and for emerging) themes, before grouping.
     min_respondents, alpha, prior_strength
-        As for :func:`keyness`; only terms with ``q_value <= alpha`` are kept.
+        As for :func:`keyness`.
+    min_share : float, default 0.5
+        See above.
     link : float, default 0.2
-        Jaccard threshold that joins two terms into one draft theme.
+        Jaccard threshold that joins a term to a draft theme.
 
     Returns
     -------
     DataFrame
-        :data:`SUGGESTION_COLUMNS`. ``kind`` is ``"term"`` (``theme`` an
-        existing id; ``respondents_group`` = coded answers with the term,
-        ``respondents_reference`` = answers it would newly reach) or
-        ``"new_theme"`` (``theme`` a draft id; ``respondents_group`` =
-        uncoded answers with the term, ``respondents_reference`` = coded ones).
+        :data:`SUGGESTION_COLUMNS`; ``respondents_group`` counts answers on the
+        side the term is key for (coded with the theme / uncoded / latest
+        wave), ``respondents_reference`` the other side (for ``"term"``: the
+        answers it would newly reach).
     """
     options = _options(prior_strength, min_respondents, None, "z", alpha, "collapse")
+    if not 0 <= min_share <= 1:
+        raise AnalysisError(f"min_share must lie between 0 and 1, got {min_share!r}")
     matrix = sp.csr_matrix(matrix)
     terms = np.asarray(terms, dtype=object)
     n_words = np.asarray(n_words)
@@ -792,79 +809,76 @@ def suggest_terms(
     else:
         known = np.zeros((len(columns), len(themes)), dtype=bool)
 
-    coded = (theme_matrix != 0).astype(np.float64)
-    scope = sp.diags(answered.astype(float))
-    w = mats.weights
-    # one product for every theme: coded answers per theme, and all answered ones
-    coded_counts = (coded.T @ scope @ sp.diags(w) @ mats.binary)[:, columns].toarray()
-    coded_resp = np.rint((coded.T @ scope @ mats.binary)[:, columns].toarray()).astype(np.int64)
-    all_counts = np.asarray((answered * w) @ mats.binary).ravel()[columns]
-    all_resp = np.rint(in_scope[columns]).astype(np.int64)
-    coded_docs = np.asarray(coded.T @ answered.astype(float)).ravel()
-    coded_weight = np.asarray(coded.T @ (answered * w)).ravel()
-    n_answered, weight_answered = float(answered.sum()), float((answered * w).sum())
+    def ranked(counts: _Counts, group: int, reference: int, limit: int, eligible: np.ndarray) -> pd.DataFrame:
+        sides = _sides(counts, group, reference)
+        resp_g, resp_r = sides[2], sides[3]
+        share = resp_g / np.maximum(resp_g + resp_r, 1)
+        chosen = _Options(options.prior_strength, options.min_respondents, int(limit), "z", alpha, "collapse")
+        frame, _ = _score(sub_terms, sub_words, *sides, chosen, parts,
+                          eligible=eligible & (share >= min_share))
+        return frame[(frame["z"] > 0) & (frame["q_value"] <= alpha)].reset_index(drop=True)
 
     frames = []
-    per_theme = _Options(options.prior_strength, options.min_respondents, int(max_terms), "z", alpha,
-                         "collapse")
-    per_new = _Options(options.prior_strength, options.min_respondents, int(max_new_terms), "z", alpha,
-                       "collapse")
+    coded = (theme_matrix != 0).tocsc()
     for t, theme in enumerate(themes):
-        if coded_docs[t] == 0 or coded_docs[t] == n_answered:
+        with_theme = np.zeros(n_documents, bool)
+        with_theme[coded[:, t].indices] = True
+        classes = np.where(answered, np.where(with_theme, 0, 1), -1)
+        counts = _class_sums(mats, classes, 2, columns)
+        if counts.documents.min() == 0:
             continue
-        scale = n_answered / weight_answered
-        y_g = coded_counts[t] * scale
-        y_r = (all_counts - coded_counts[t]) * scale
-        r_g, r_r = coded_resp[t], all_resp - coded_resp[t]
-        n_g = coded_weight[t] * scale
-        n_r = (weight_answered - coded_weight[t]) * scale
-        frame, _ = _score(sub_terms, sub_words, y_g, y_r, r_g, r_r, n_g, n_r, per_theme, parts,
-                          eligible=~known[:, t] & (r_r > 0))
-        frame = frame[(frame["z"] > 0) & (frame["q_value"] <= alpha)]
+        frame = ranked(counts, 0, 1, max_terms, ~known[:, t] & (counts.respondents[1] > 0))
         frames.append(frame.assign(kind="term", theme=theme))
 
-    uncoded = answered & (np.diff(theme_matrix.indptr) == 0)
-    coded_any = answered & ~uncoded
-    if uncoded.any() and coded_any.any():
-        classes = np.full(n_documents, -1, dtype=np.int64)
-        classes[uncoded], classes[coded_any] = 0, 1
-        counts = _class_sums(mats, classes, 2, columns)
-        frame, _ = _score(sub_terms, sub_words, *_sides(counts, 0, 1), per_new, parts,
-                          eligible=~known.any(axis=1))
-        frame = frame[(frame["z"] > 0) & (frame["q_value"] <= alpha)].reset_index(drop=True)
+    no_theme = np.diff(theme_matrix.indptr) == 0
+    classes = np.where(answered, np.where(no_theme, 0, 1), -1)
+    counts = _class_sums(mats, classes, 2, columns)
+    if counts.documents.min() > 0:
+        frame = ranked(counts, 0, 1, max_new_terms, ~known.any(axis=1))
         if len(frame):
-            frame["theme"] = _draft_themes(frame, mats.binary, uncoded, terms, columns, link)
+            frame["theme"] = _draft_themes(frame, mats.binary, answered & no_theme, sub_terms, columns, link)
             frames.append(frame.assign(kind="new_theme"))
+
+    if waves is not None:
+        codes, values = _labels(np.asarray(waves, dtype=object))
+        classes = np.where(answered, codes, -1)
+        counts = _class_sums(mats, classes, len(values), columns)
+        present = np.flatnonzero(counts.documents > 0)
+        if len(present) >= 2:
+            latest, previous = int(present[-1]), int(present[-2])
+            frame = ranked(counts, latest, previous, max_new_terms, ~known.any(axis=1))
+            if len(frame):
+                frame["theme"] = _draft_themes(frame, mats.binary, answered & (codes == latest), sub_terms,
+                                               columns, link, prefix="emerging_")
+                frames.append(frame.assign(kind="emerging_theme"))
     if not frames:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in SUGGESTION_COLUMNS})
-    table = pd.concat(frames, ignore_index=True)
-    return table[SUGGESTION_COLUMNS].reset_index(drop=True)
+    return pd.concat(frames, ignore_index=True)[SUGGESTION_COLUMNS]
 
 
-def _draft_themes(frame: pd.DataFrame, binary: sp.csr_matrix, uncoded: np.ndarray, terms: np.ndarray,
-                  columns: np.ndarray, link: float) -> np.ndarray:
-    """Draft theme id per candidate row: connected components of answer overlap."""
-    from scipy.sparse.csgraph import connected_components
-
-    position = pd.Index(terms[columns]).get_indexer(frame["term"].to_numpy(dtype=object))
-    chosen = binary[np.flatnonzero(uncoded)][:, columns[position]]
+def _draft_themes(frame: pd.DataFrame, binary: sp.csr_matrix, documents: np.ndarray, sub_terms: np.ndarray,
+                  columns: np.ndarray, link: float, prefix: str = "draft_") -> np.ndarray:
+    """Draft theme id per candidate row (rows in rank order): leader grouping by answer overlap."""
+    position = pd.Index(sub_terms).get_indexer(frame["term"].to_numpy(dtype=object))
+    chosen = binary[np.flatnonzero(documents)][:, columns[position]]
     overlap = (chosen.T @ chosen).toarray()
     size = np.diag(overlap)
     jaccard = overlap / np.maximum(size[:, None] + size[None, :] - overlap, 1)
-    _, component = connected_components(sp.csr_matrix(jaccard >= link), directed=False)
-    # rows are in z order, so the first row of a component is its best term
-    first_row = pd.Series(np.arange(len(frame))).groupby(component).transform("min").to_numpy()
-    names = {}
-    used: set[str] = set()
-    for row in sorted(set(first_row)):
-        slug = "_".join("".join(ch if ch.isascii() and ch.isalnum() else " " for ch in
-                                str(frame["term"].iloc[row])).split()).lower() or f"theme_{len(names) + 1}"
-        name = f"draft_{slug}"
-        while name in used:
+    leader = np.arange(len(frame))
+    for row in range(1, len(frame)):  # at most max_new_terms rows
+        leaders = np.flatnonzero(leader[:row] == np.arange(row))
+        joined = leaders[jaccard[row, leaders] >= link]
+        if len(joined):
+            leader[row] = joined[0]
+    names: dict[int, str] = {}
+    for row in np.unique(leader):
+        term = str(frame["term"].iloc[row])
+        slug = "_".join("".join(ch if ch.isascii() and ch.isalnum() else " " for ch in term).split()).lower()
+        name = f"{prefix}{slug or f'theme_{len(names) + 1}'}"
+        while name in names.values():
             name += "_"
-        used.add(name)
-        names[row] = name
-    return np.array([names[r] for r in first_row], dtype=object)
+        names[int(row)] = name
+    return np.array([names[int(r)] for r in leader], dtype=object)
 
 
 def _yaml_string(text: str) -> str:
@@ -934,4 +948,16 @@ def render_suggestions_yaml(suggestions: pd.DataFrame, *, labels: Mapping[str, s
             lines += [entry(row, "      ", "{g} uncoded, {r} coded answers") for row in rows.itertuples()]
     else:
         lines.append("candidate_themes: []  # none passed the thresholds")
+    emerging = suggestions[suggestions["kind"] == "emerging_theme"]
+    if len(emerging):
+        lines += ["", "# 3. Emerging topics: terms no theme covers that rose in the latest wave against the",
+                  "#    previous one (they may share answers with known themes). Same shape as above.",
+                  "emerging_themes:"]
+        for theme, rows in emerging.groupby("theme", sort=False):
+            lines += [f"  - id: {theme}",
+                      f"    label: {_yaml_string('Draft: ' + str(rows['term'].iloc[0]))}",
+                      "    negated: keep  # decide: drop if negated mentions should not count",
+                      "    terms:"]
+            lines += [entry(row, "      ", "{g} answers in the latest wave, {r} in the one before")
+                      for row in rows.itertuples()]
     return "\n".join(lines) + "\n"
