@@ -39,7 +39,8 @@ def peak_rss_gb() -> float:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024 ** 2
 
 
-def synthetic_answers(n: int, n_groups: int, seed: int = 20260401) -> tuple[list[str], np.ndarray, np.ndarray]:
+def synthetic_answers(n: int, n_groups: int,
+                      seed: int = 20260401) -> tuple[list[str], np.ndarray, np.ndarray]:
     """Invented answers, their group labels and survey weights."""
     rng = np.random.default_rng(seed)
     content = np.array([f"w{i:04d}" for i in range(8000)], dtype=object)
