@@ -31,7 +31,7 @@ def planted_table() -> pd.DataFrame:
     coded = labels.merge(frame[["response_id", "weight", "stratum", "psu", "wave", *GROUPS]], on="response_id")
     codes = coded["themes"].str.get_dummies(sep=";")
     for theme in themes:
-        coded[theme] = codes[theme] if theme in codes else 0
+        coded[theme] = codes.get(theme, 0)
     coded["answered"] = 1  # truth.csv's planted_probability has all respondents as its base
     design = SurveyDesign.from_frame(coded, weight="weight", strata="stratum", cluster="psu", wave="wave")
     table = prevalence(coded, themes, design, groups=GROUPS, wave="wave")

@@ -18,6 +18,17 @@ _EXPORTS = {
     "DesignError": "errors", "AnalysisError": "errors",
     "tokenize": "text", "tokenize_corpus": "text", "normalise": "text", "redact": "text",
     "TokenStream": "text",
+    "SurveyConfig": "config", "load_config": "config", "config_from_mapping": "config",
+    "read_table": "readers", "read_survey": "readers", "SurveyData": "readers", "answered_mask": "readers",
+    "Lexicon": "lexicon", "Theme": "lexicon", "Term": "lexicon", "load_lexicon": "lexicon",
+    "parse_lexicon": "lexicon", "lint_lexicon": "lexicon",
+    "ThemeCoder": "coding", "CodingResult": "coding",
+    "code_survey": "pipeline", "write_coded": "pipeline", "load_coded": "pipeline", "CodedSurvey": "pipeline",
+    "compare_with_hand_codes": "agreement", "agreement_table": "agreement",
+    "SurveyDesign": "design",
+    "analyse": "estimate", "prevalence": "estimate", "compare_groups": "estimate", "compare_waves": "estimate",
+    "group_tests": "estimate", "ReliabilityRule": "estimate", "NCHS_LIKE": "estimate",
+    "keyness": "keyness", "document_term_matrix": "ngrams",
 }
 
 

@@ -17,11 +17,11 @@ import scipy.sparse as sp
 
 from .coding import CodingResult, ThemeCoder
 from .config import SurveyConfig, load_config
+from .errors import InputError
 from .lexicon import Lexicon, load_lexicon
 from .output import csv_writer, file_sha256, parquet_writer, write_outputs
-from .readers import SurveyData, answered_mask, read_survey
+from .readers import answered_mask, read_survey
 from .text import TokenStream, redact, tokenize_corpus
-from .errors import InputError
 
 #: Columns of ``evidence.csv``.
 EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "matched_text"]
