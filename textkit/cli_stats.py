@@ -16,7 +16,6 @@ import click
 
 def _load_coded(source: Path) -> tuple[Any, dict, list[str], dict]:
     """(coded frame, roles, themes, input record) from a coded folder, coded file or config."""
-    from .errors import InputError
 
     suffix = source.suffix.lower()
     if suffix in (".yaml", ".yml"):
@@ -29,41 +28,10 @@ def _load_coded(source: Path) -> tuple[Any, dict, list[str], dict]:
             if key not in roles and config is not None and hasattr(config, key):
                 roles[key] = getattr(config, key)
         return survey.coded, roles, list(survey.themes), {"config": str(source)}
-    import json
-
     from .output import file_sha256
-    from .readers import read_table
+    from .pipeline import load_coded
 
-    if source.is_dir():
-        folder = source
-        candidates = [folder / "coded.parquet", folder / "coded.csv"]
-        data_path = next((c for c in candidates if c.exists()), None)
-        if data_path is None:
-            raise InputError("the folder has no coded.parquet or coded.csv; run 'textkit code' first",
-                             source=source)
-    elif source.exists():
-        folder, data_path = source.parent, source
-    else:
-        raise InputError("no such file or folder", source=source)
-    manifest_path = folder / "manifest.json"
-    if not manifest_path.exists():
-        raise InputError("manifest.json is missing beside the coded table; it names the design columns and "
-                         "themes (run 'textkit code' to write both)", source=manifest_path)
-    try:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-    except (OSError, ValueError) as error:
-        raise InputError(f"manifest.json cannot be read: {error}", source=manifest_path) from error
-    if "roles" not in manifest or "themes" not in manifest:
-        raise InputError("manifest.json has no 'roles' or 'themes' key; it is not from 'textkit code'",
-                         source=manifest_path)
-    frame, _ = read_table(data_path)
-    if data_path.suffix.lower() == ".csv":
-        import pandas as pd
-
-        numeric = [c for c in (*manifest["themes"], "answered", manifest["roles"].get("weight"),
-                               manifest["roles"].get("fpc")) if c and c in frame.columns]
-        for column in numeric:
-            frame[column] = pd.to_numeric(frame[column], errors="coerce")
+    frame, manifest, data_path = load_coded(source)
     record = {"coded": {"path": str(data_path), "sha256": file_sha256(data_path)}}
     return frame, dict(manifest["roles"]), list(manifest["themes"]), record
 

@@ -229,22 +229,44 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
     return write_outputs(out_dir, files, survey.manifest)
 
 
-def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict]:
-    """Read a coded output folder (or its coded.parquet) back: (coded frame, manifest)."""
+def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
+    """Read a coded output back: (coded frame, its manifest, the table's path).
+
+    ``path`` is a folder written by ``textkit code`` (coded.parquet preferred,
+    else coded.csv) or one of those files; the manifest beside it names the
+    design columns (``roles``) and the ``themes``.
+    """
     import json
 
-    path = Path(path)
-    folder = path if path.is_dir() else path.parent
-    table = folder / "coded.parquet" if path.is_dir() else path
+    from .readers import read_table
+
+    source = Path(path)
+    if source.is_dir():
+        folder = source
+        data_path = next((c for c in (folder / "coded.parquet", folder / "coded.csv") if c.exists()), None)
+        if data_path is None:
+            raise InputError("the folder has no coded.parquet or coded.csv; run 'textkit code' first",
+                             source=source)
+    elif source.exists():
+        folder, data_path = source.parent, source
+    else:
+        raise InputError("no such file or folder", source=source)
     manifest_path = folder / "manifest.json"
-    if not table.exists():
-        raise InputError("no coded.parquet here; run 'textkit code' first", source=table)
     if not manifest_path.exists():
-        raise InputError("no manifest.json beside the coded table; run 'textkit code' again",
-                         source=manifest_path)
+        raise InputError("manifest.json is missing beside the coded table; it names the design columns and "
+                         "themes (run 'textkit code' to write both)", source=manifest_path)
     try:
         manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        coded = pd.read_parquet(table)
     except (OSError, ValueError) as error:
-        raise InputError(f"cannot read the coded output: {error}", source=table) from error
-    return coded, manifest
+        raise InputError(f"manifest.json cannot be read: {error}", source=manifest_path) from error
+    if "roles" not in manifest or "themes" not in manifest:
+        raise InputError("manifest.json has no 'roles' or 'themes' key; it is not from 'textkit code'",
+                         source=manifest_path)
+    frame, _ = read_table(data_path)
+    if data_path.suffix.lower() == ".csv":
+        numeric = [c for c in (*manifest["themes"], "answered", "n_themes", "uncoded",
+                               manifest["roles"].get("weight"), manifest["roles"].get("fpc"))
+                   if c and c in frame.columns]
+        for column in numeric:
+            frame[column] = pd.to_numeric(frame[column], errors="coerce")
+    return frame, manifest, data_path
