@@ -40,11 +40,14 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 import scipy.sparse as sp
+from sklearn.base import BaseEstimator
 
 from .lexicon import Lexicon
 from .text import TokenStream, tokenize_corpus
 
 _MAX_CODEPOINT = "\U0010ffff"
+#: Snowball English special words whose stem is not (nearly) a prefix of them: stem -> word.
+_IRREGULAR_STEMS = {"die": "dying", "lie": "lying", "tie": "tying"}
 
 
 @dataclass(frozen=True, eq=False)
@@ -189,9 +192,11 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
                 stem = stem or _stemmer()
                 stem_cache[word] = stem.stem(word)
             stems_wanted.setdefault(stem_cache[word], []).append(pattern_id)
-        # A Snowball stem is, but for its last letter (happy -> happi), a prefix of
-        # the word: only vocabulary words starting with that head can share it.
-        heads = sorted({s[: max(3, len(s) - 1)] for s in stems_wanted})
+        # A Snowball stem is, but for its last letter (happy -> happi, fly -> fli), a
+        # prefix of the word: only vocabulary words starting with that head can share
+        # it. Snowball's few irregular forms (dying -> die) are added by hand.
+        heads = sorted({s[: max(2, len(s) - 1)] for s in stems_wanted}
+                       | {_IRREGULAR_STEMS[s] for s in stems_wanted if s in _IRREGULAR_STEMS})
         head_array = np.array(heads, dtype=str)
         head_lows = np.searchsorted(vocab, head_array)
         head_highs = np.searchsorted(vocab, np.char.add(head_array, _MAX_CODEPOINT))
@@ -300,8 +305,12 @@ def _contained(theme: np.ndarray, start: np.ndarray, length: np.ndarray, n_token
     return contained | repeat
 
 
-class ThemeCoder:
+class ThemeCoder(BaseEstimator):
     """Code documents with a theme lexicon.
+
+    A scikit-learn estimator (``get_params``, ``set_params`` and ``clone``
+    come from :class:`sklearn.base.BaseEstimator`), usable as a step of a
+    :class:`sklearn.pipeline.Pipeline`.
 
     Parameters
     ----------
@@ -328,14 +337,12 @@ class ThemeCoder:
         self.lexicon = lexicon
         self.negation_window = negation_window
 
-    # scikit-learn conventions -------------------------------------------------
-    def get_params(self, deep: bool = True) -> dict:
-        return {"lexicon": self.lexicon, "negation_window": self.negation_window}
-
-    def set_params(self, **params) -> ThemeCoder:
-        for key, value in params.items():
-            setattr(self, key, value)
-        return self
+    def __repr__(self, N_CHAR_MAX: int = 700) -> str:
+        # scikit-learn's repr would print the whole lexicon, every term of it
+        lexicon = self.lexicon
+        about = (f"<lexicon {lexicon.name!r} version {lexicon.version!r}, {len(lexicon.themes)} themes>"
+                 if isinstance(lexicon, Lexicon) else repr(lexicon))
+        return f"ThemeCoder(lexicon={about}, negation_window={self.negation_window!r})"
 
     def fit(self, documents: Sequence[str | None] | TokenStream, y=None) -> ThemeCoder:
         """Compile the lexicon against the vocabulary of ``documents``."""

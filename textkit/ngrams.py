@@ -47,6 +47,57 @@ def _extend_keys(keys: np.ndarray, next_codes: np.ndarray, base: int) -> np.ndar
     return keys * base + next_codes
 
 
+def _window_pairs(codes: np.ndarray, start: np.ndarray, n: int, base: int, document: np.ndarray,
+                  n_documents: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Distinct n-grams starting at ``start`` and their (document, n-gram) occurrence counts.
+
+    Returns
+    -------
+    term_codes : (n_unique, n) int64, token codes of each distinct n-gram, in token-sequence order
+    pair_document, pair_term, pair_count : (n_pairs,) arrays, sorted by term then document
+    """
+    if base ** n <= _INT64_MAX // max(n_documents, 1):
+        # fast path: one int64 key per (n-gram, document), one in-place sort
+        combined = codes[start]
+        for k in range(1, n):
+            combined = combined * base + codes[start + k]
+        combined = combined * n_documents + document[start]
+        combined.sort()
+        first = np.empty(len(combined), dtype=bool)
+        first[0] = True
+        np.not_equal(combined[1:], combined[:-1], out=first[1:])
+        pair_start = np.flatnonzero(first)
+        del first
+        pair_count = np.diff(np.append(pair_start, len(combined)))
+        pair_key = combined[pair_start]
+        del combined, pair_start
+        term_key, pair_document = np.divmod(pair_key, n_documents)
+        del pair_key
+        new_term = np.empty(len(term_key), dtype=bool)
+        new_term[0] = True
+        np.not_equal(term_key[1:], term_key[:-1], out=new_term[1:])
+        pair_term = np.cumsum(new_term) - 1
+        unique_key = term_key[new_term]
+        term_codes = np.empty((len(unique_key), n), dtype=np.int64)
+        for k in range(n):
+            term_codes[:, k] = unique_key // base ** (n - 1 - k) % base
+        return term_codes, pair_document, pair_term, pair_count
+    keys = codes[start]
+    for k in range(1, n):
+        keys = _extend_keys(keys, codes[start + k], base)
+    unique_keys, term_of_window = np.unique(keys, return_inverse=True)
+    del keys
+    n_unique = len(unique_keys)
+    representative = np.empty(n_unique, dtype=np.int64)
+    representative[term_of_window] = start  # any occurrence carries the term's codes
+    pairs, pair_count = np.unique(document[start].astype(np.int64) * n_unique + term_of_window,
+                                  return_counts=True)
+    pair_document, pair_term = np.divmod(pairs, n_unique)
+    order = np.lexsort((pair_document, pair_term))
+    term_codes = np.stack([codes[representative + k] for k in range(n)], axis=1)
+    return term_codes, pair_document[order], pair_term[order], pair_count[order]
+
+
 def document_term_matrix(
     stream: TokenStream,
     ngram_range: tuple[int, int] = (1, 3),
@@ -113,30 +164,20 @@ def document_term_matrix(
         start = np.flatnonzero(valid)
         if not len(start):
             continue
-        keys = codes[start]
-        for k in range(1, n):
-            keys = _extend_keys(keys, codes[start + k], base)
-        unique_keys, term_of_window = np.unique(keys, return_inverse=True)
-        del keys
-        n_unique = len(unique_keys)
-        representative = np.empty(n_unique, dtype=np.int64)
-        representative[term_of_window] = start  # any occurrence carries the term's codes
-        pairs, counts = np.unique(document[start].astype(np.int64) * n_unique + term_of_window,
-                                  return_counts=True)
-        del term_of_window
-        pair_term = pairs % n_unique
+        block, pair_doc, pair_term, counts = _window_pairs(codes, start, n, base, document, n_documents)
+        del start
+        n_unique = len(block)
         document_frequency = np.bincount(pair_term, minlength=n_unique)
         kept = document_frequency >= min_df
         local_id = np.cumsum(kept) - 1
         pair_kept = kept[pair_term]
-        pair_documents.append(pairs[pair_kept] // n_unique)
-        pair_terms.append(local_id[pair_term[pair_kept]])
-        pair_counts.append(counts[pair_kept])
-        block = np.full((int(kept.sum()), high), -1, dtype=np.int64)
-        first = representative[kept]
-        for k in range(n):
-            block[:, k] = codes[first + k]
-        term_codes.append(block)
+        pair_documents.append(pair_doc[pair_kept].astype(np.int32))
+        pair_terms.append(local_id[pair_term[pair_kept]].astype(np.int32))
+        pair_counts.append(counts[pair_kept].astype(np.int32))
+        del pair_doc, pair_term, counts, pair_kept
+        padded = np.full((int(kept.sum()), high), -1, dtype=np.int64)
+        padded[:, :n] = block[kept]
+        term_codes.append(padded)
 
     if not term_codes:
         empty = np.zeros(0, dtype=object)
@@ -146,10 +187,15 @@ def document_term_matrix(
     global_id = np.empty(len(order), dtype=np.int64)
     global_id[order] = np.arange(len(order))
     offsets = np.cumsum([0] + [len(b) for b in term_codes[:-1]])
+    global_id = global_id.astype(np.int32)
     rows = np.concatenate(pair_documents)
+    del pair_documents
     cols = np.concatenate([global_id[t + off] for t, off in zip(pair_terms, offsets, strict=True)])
-    data = np.ones(len(rows), np.int32) if binary else np.concatenate(pair_counts).astype(np.int32)
-    matrix = sp.csr_matrix((data, (rows, cols)), shape=(n_documents, len(order)))
+    del pair_terms
+    data = np.ones(len(rows), np.int32) if binary else np.concatenate(pair_counts)
+    del pair_counts
+    matrix = sp.coo_matrix((data, (rows, cols)), shape=(n_documents, len(order))).tocsr()
+    del rows, cols, data
     matrix.sort_indices()
 
     sorted_codes = all_codes[order]

@@ -44,7 +44,24 @@ import numpy as np
 #: Separator placed between documents in the joined corpus; never a token.
 DOCUMENT_SEPARATOR = "\x1e"
 
-_WORD = r"[^\W_]+(?:['\-][^\W_]+)*"
+
+def _mark_class() -> str:
+    """Regex class body of the combining marks (categories Mn, Mc, Me) of the BMP."""
+    ranges: list[list[int]] = []
+    for code in range(0x300, 0x10000):
+        if unicodedata.category(chr(code))[0] == "M":
+            if ranges and ranges[-1][1] == code - 1:
+                ranges[-1][1] = code
+            else:
+                ranges.append([code, code])
+    return "".join(chr(a) if a == b else f"{chr(a)}-{chr(b)}" for a, b in ranges)
+
+
+# Combining marks that NFKC cannot compose (Devanagari or Thai vowel signs, Arabic
+# vowel points, the dot of a lower-cased "İ") are not \w in Python: without them a
+# word of those scripts would fall apart into fragments.
+_LETTERS = f"[^\\W_]+(?:[{_mark_class()}]+[^\\W_]*)*"
+_WORD = f"{_LETTERS}(?:['\\-]{_LETTERS})*"
 _NUMBER = r"\d+(?:[.,:]\d+)+"
 _CURRENCY = r"[$€£¥₹]"
 _EMOJI = r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF](?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*"
@@ -143,13 +160,28 @@ def word_tokens(text: str) -> list[str]:
     return [token for token in tokenize(text) if not is_break_token(token)]
 
 
+def _end_origin(origin: np.ndarray) -> np.ndarray:
+    """Map a normalised *end* position to the original text, shape (len(origin),).
+
+    ``origin`` gives where each normalised character's segment starts; a token
+    ending at normalised position ``e`` ends where the segment of character
+    ``e - 1`` ends, even when that segment expanded ("…" -> "...", "½" -> "1⁄2").
+    """
+    segment_starts = np.unique(origin)
+    end = np.empty(len(origin), dtype=np.int64)
+    end[0] = 0
+    end[1:] = segment_starts[np.searchsorted(segment_starts, origin[:-1], side="right")]
+    return end
+
+
 def token_spans(text: str) -> list[tuple[int, int]]:
     """Character spans in the *original* ``text`` of each token of ``tokenize(text)``."""
     normalised, origin = normalise_with_offsets(text)
     spans = [match.span() for match in TOKEN_PATTERN.finditer(normalised)]
     if origin is None:
         return spans
-    return [(int(origin[start]), int(origin[end])) for start, end in spans]
+    end_origin = _end_origin(origin)
+    return [(int(origin[start]), int(end_origin[end])) for start, end in spans]
 
 
 @lru_cache(maxsize=1)
@@ -246,7 +278,9 @@ def prepare_corpus(texts: Sequence[str | None]) -> tuple[str, dict[int, np.ndarr
         if not isinstance(text, str):
             parts.append("")
         elif text.isascii():
-            parts.append(text.lower())
+            # the one ASCII character normalisation changes (besides control characters,
+            # which are never part of a token): a backtick used as an apostrophe
+            parts.append(text.lower().replace("`", "'"))
         else:
             normalised, origin = normalise_with_offsets(text)
             parts.append(normalised)
@@ -297,7 +331,7 @@ def _tokenize_batch(texts: list, index: dict[str, int], offsets: bool):
             for number, origin in origins.items():
                 span = slice(offsets_in_batch[number], offsets_in_batch[number + 1])
                 starts[span] = origin[starts[span]]
-                ends[span] = origin[ends[span]]
+                ends[span] = _end_origin(origin)[ends[span]]
         starts = starts.astype(np.int32)
         ends = ends.astype(np.int32)
     return raw[keep], counts, starts, ends
@@ -346,9 +380,16 @@ _EMAIL = re.compile(r"[\w.+-]+@[\w-]+(?:\.[\w-]+)+")
 _URL = re.compile(r"(?:https?://|www\.)\S+|\b[\w-]+(?:\.[\w-]+)*\.(?:com|net|org|info|io|co|uk|de|fr|nl|eu)(?:/\S*)?\b",
                   re.IGNORECASE)
 _PHONE = re.compile(r"(?<![\w])(?:\+|00)?\d[\d ()./-]{6,}\d(?![\w])")
+#: Opening-hours ranges ("9.30-17.00") have a phone number's shape but are not one.
+_TIME_RANGE = re.compile(r"(?:[01]?\d|2[0-4])[.:][0-5]\d ?- ?(?:[01]?\d|2[0-4])[.:][0-5]\d")
 _DIGIT_RUN = re.compile(r"\b[A-Z]{0,4}\d{6,}[A-Z]{0,4}\b", re.IGNORECASE)
 #: Placeholders written in place of redacted text.
 REDACTION_LABELS = {"email": "[email]", "url": "[link]", "phone": "[phone]", "number": "[number]"}
+
+
+def _phone_label(match: re.Match) -> str:
+    found = match.group()
+    return found if _TIME_RANGE.fullmatch(found) else REDACTION_LABELS["phone"]
 
 
 def redact(text: str, names: Iterable[str] = ()) -> str:
@@ -363,7 +404,7 @@ def redact(text: str, names: Iterable[str] = ()) -> str:
         return text
     text = _EMAIL.sub(REDACTION_LABELS["email"], text)
     text = _URL.sub(REDACTION_LABELS["url"], text)
-    text = _PHONE.sub(REDACTION_LABELS["phone"], text)
+    text = _PHONE.sub(_phone_label, text)
     text = _DIGIT_RUN.sub(REDACTION_LABELS["number"], text)
     words = [re.escape(name) for name in names if name and name.strip()]
     if words:
