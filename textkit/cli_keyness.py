@@ -159,8 +159,8 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
                f"question(s), {len(result):,} rows; left out (counted per comparison): "
                f"{summary.get('below_min_respondents', 0):,} terms below {min_respondents} answers, "
                f"{summary.get('explained_by_phrase', 0):,} words explained by a key phrase, "
-               f"{summary.get('not_significant', 0):,} not significant, "
-               f"{summary.get('beyond_max_terms', 0):,} beyond --max-terms")
+               + (f"{summary.get('not_significant', 0):,} not significant, " if rank_by == "log_ratio" else "")
+               + f"{summary.get('beyond_max_terms', 0):,} beyond --max-terms")
     click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir}")
 
 
