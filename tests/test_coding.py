@@ -17,6 +17,7 @@ from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import FunctionTransformer
 
 from textkit.coding import CodingResult, ThemeCoder
+from textkit.errors import InputError
 from textkit.lexicon import load_lexicon, parse_lexicon
 from textkit.text import is_break_token, is_negation_cue, token_spans, tokenize, tokenize_corpus
 
@@ -303,6 +304,19 @@ def test_evidence_from_a_token_stream_needs_texts():
         coder.code(tokenize_corpus(EVIDENCE_DOCUMENTS, offsets=False))
 
 
+def test_texts_are_taken_by_position_and_checked():
+    stream = tokenize_corpus(["long queue", "steep prices"])
+    coder = ThemeCoder(LEXICON).fit(stream)
+    labelled = pd.Series(["long queue", "steep prices"], index=[1, 0])  # labels are not positions
+    assert coder.code(stream, texts=labelled).evidence["matched_text"].tolist() == ["queue", "steep", "prices"]
+    with pytest.raises(InputError, match="2 documents"):
+        coder.code(stream, texts=["long queue"])
+    with pytest.raises(InputError, match="single string"):
+        coder.code("long queue")
+    with pytest.raises(InputError, match="single string"):
+        ThemeCoder(LEXICON).fit("long queue")
+
+
 def test_term_hits_list_every_term_with_zeros():
     result = code(["queue queue", "a long wait", "the price"])
     hits = result.term_hits
@@ -351,6 +365,9 @@ def test_code_before_fit_raises():
 
 def test_sklearn_clone_and_params():
     coder = ThemeCoder(LEXICON, negation_window=2)
+    assert repr(coder) == "ThemeCoder(lexicon=<lexicon 'coding-tests' version 't1', 7 themes>, negation_window=2)"
+    with pytest.raises(ValueError, match="Invalid parameter"):
+        coder.set_params(window=3)
     assert coder.get_params() == {"lexicon": LEXICON, "negation_window": 2}
     copy = clone(coder)  # reference: scikit-learn's estimator contract
     assert copy is not coder and copy.get_params()["negation_window"] == 2
@@ -377,7 +394,7 @@ def test_sklearn_pipeline():
 WORDS = ["queue", "wait", "long", "free", "park", "staff", "no", "not", "x", ",", "but"]
 
 
-@settings(max_examples=120, deadline=None, suppress_health_check=list(HealthCheck))
+@settings(max_examples=60, deadline=None, suppress_health_check=list(HealthCheck))
 @given(documents=st.lists(st.lists(st.sampled_from(WORDS), max_size=8).map(" ".join), min_size=1, max_size=6),
        extra=st.lists(st.sampled_from(WORDS[:8]), min_size=1, max_size=2).map(" ".join),
        wildcard=st.booleans(), theme_index=st.integers(0, 1))

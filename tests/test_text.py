@@ -74,6 +74,16 @@ def test_normalise_quotes_dashes_spaces_and_controls():
     assert normalise("a\u00a0b\u2009c\u3000d\u200be\ufeff") == "a b c d e "
     assert normalise("a\tb\nc\x00d\x07e\x1ef\x7fg") == "a b c d e f g"
     assert normalise("ASCII Only 3.50") == "ascii only 3.50"
+    assert normalise("ex\u00adpen\u2060sive") == "expensive"  # invisible soft hyphen, word joiner
+
+
+def test_invisible_characters_do_not_split_words():
+    sample = "Too ex\u00adpensive!"
+    assert tokenize(sample) == ["too", "expensive", "!"]
+    assert [sample[a:b] for a, b in token_spans(sample)] == ["Too", "ex\u00adpensive", "!"]
+    stream = tokenize_corpus([sample])
+    assert stream_tokens(stream, 0) == ["too", "expensive", "!"]
+    assert stream_spans(stream, 0) == token_spans(sample)
 
 
 def test_normalise_with_offsets_identity_and_map():
@@ -116,7 +126,8 @@ def test_tokenize_keeps_words_with_combining_marks_whole():
     # Marks NFKC cannot compose are not \w in Python; a word must not fall apart at them.
     assert tokenize("q\u0303uiet") == ["q\u0303uiet"]
     assert tokenize("नमस्ते दोस्त") == ["नमस्ते", "दोस्त"]  # Devanagari vowel signs and virama
-    assert tokenize("İzmir trip") == ["i\u0307zmir", "trip"]  # lower-cased dotted capital I
+    assert tokenize("İzmir trip") == ["izmir", "trip"]  # dotted capital I lower-cases to plain i
+    assert [s[a:b] for s in ["İzmir"] for a, b in token_spans(s)] == ["İzmir"]
 
 
 def test_word_tokens_match_regex_reference_on_plain_ascii():
@@ -210,7 +221,7 @@ def test_batched_stream_equals_unbatched(monkeypatch):
 @settings(max_examples=150, deadline=None, suppress_health_check=list(HealthCheck))
 @given(st.lists(st.lists(st.sampled_from(
     list("ab Z-'`.,:3\t\x1e") + ["\u2019", "\u201c", "\u2014", "ﬁ", "Ｑ", "e\u0301", "…", "½", "İ",
-                                 "\u00a0", "\u200b", "\U0001F600", "£", "ß"]),
+                                 "\u00a0", "\u200b", "\u00ad", "\U0001F600", "£", "ß"]),
     max_size=10).map("".join), max_size=4))
 def test_stream_agrees_with_single_text_functions(texts):
     # Property: the one-pass corpus tokeniser equals tokenize()/token_spans() text by text.

@@ -42,6 +42,7 @@ import pandas as pd
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 
+from .errors import InputError
 from .lexicon import Lexicon
 from .text import TokenStream, tokenize_corpus
 
@@ -305,6 +306,12 @@ def _contained(theme: np.ndarray, start: np.ndarray, length: np.ndarray, n_token
     return contained | repeat
 
 
+def _check_not_one_string(documents) -> None:
+    if isinstance(documents, str):
+        raise InputError("expected a list of answers, one text each, but got a single string; "
+                         "wrap it in a list: [text]")
+
+
 class ThemeCoder(BaseEstimator):
     """Code documents with a theme lexicon.
 
@@ -346,6 +353,7 @@ class ThemeCoder(BaseEstimator):
 
     def fit(self, documents: Sequence[str | None] | TokenStream, y=None) -> ThemeCoder:
         """Compile the lexicon against the vocabulary of ``documents``."""
+        _check_not_one_string(documents)
         stream = documents if isinstance(documents, TokenStream) else tokenize_corpus(documents, offsets=False)
         self._compiled = _compile(self.lexicon)
         self._stem_cache: dict[str, str] = {}
@@ -389,12 +397,24 @@ class ThemeCoder(BaseEstimator):
             Build the evidence table (needs token offsets and the texts).
         texts : sequence of str, optional
             The original texts when ``documents`` is a TokenStream (for
-            ``matched_text``).
+            ``matched_text``), in stream order (taken by position).
+
+        Raises
+        ------
+        InputError
+            If ``documents`` is a single string, or ``texts`` does not have one
+            entry per document of the stream.
         """
         if not hasattr(self, "_compiled"):
             raise RuntimeError("ThemeCoder is not fitted yet: call fit(documents) first")
+        _check_not_one_string(documents)
         if isinstance(documents, TokenStream):
             stream = documents
+            if texts is not None:
+                texts = list(texts)  # by position: a Series would be read by its labels
+                if len(texts) != stream.n_documents:
+                    raise InputError(f"texts has {len(texts)} entries but the token stream has "
+                                     f"{stream.n_documents} documents; pass the texts it was built from")
         else:
             texts = list(documents)
             stream = tokenize_corpus(texts, offsets=evidence)

@@ -11,7 +11,8 @@ Normalisation (what a token is built from)
 * curly quotes and primes become ``'`` or ``"``; hyphen and minus variants
   become ``-``; en and em dashes become ``,`` (a clause break, so
   "queue—awful" is two words and ends a negation scope);
-* odd white space and control characters become spaces;
+* odd white space and control characters become spaces; soft hyphens and
+  word joiners are deleted;
 * lower case (``str.lower``).
 
 Tokens
@@ -58,13 +59,14 @@ def _mark_class() -> str:
 
 
 # Combining marks that NFKC cannot compose (Devanagari or Thai vowel signs, Arabic
-# vowel points, the dot of a lower-cased "İ") are not \w in Python: without them a
-# word of those scripts would fall apart into fragments.
+# vowel points) are not \w in Python: without them a word of those scripts would
+# fall apart into fragments.
 _LETTERS = f"[^\\W_]+(?:[{_mark_class()}]+[^\\W_]*)*"
 _WORD = f"{_LETTERS}(?:['\\-]{_LETTERS})*"
 _NUMBER = r"\d+(?:[.,:]\d+)+"
 _CURRENCY = r"[$€£¥₹]"
-_EMOJI = r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF](?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*"
+_EMOJI = (r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF]"
+          r"(?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*")
 _BREAK = r"[.!?;:,()\[\]\"]|-+"
 #: The one tokeniser pattern; documents and lexicon terms both go through it.
 TOKEN_PATTERN = re.compile(
@@ -85,7 +87,8 @@ _DASHES_TO_BREAK = "\u2013\u2014\u2015\u2E3A\u2E3B"
 _HYPHENS = "\u2010\u2011\u2012\u2212\uFE63\uFF0D"
 _SINGLE_QUOTES = "\u2018\u2019\u201A\u201B\u2032\u02BC\u0060\u00B4"
 _DOUBLE_QUOTES = "\u201C\u201D\u201E\u201F\u2033\u00AB\u00BB"
-_SPACES = "\u00A0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200A\u200B\u2028\u2029\u202F\u205F\u3000\uFEFF"
+_SPACES = ("\u00A0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200A\u200B"
+           "\u2028\u2029\u202F\u205F\u3000\uFEFF")
 
 
 def _build_table() -> dict[int, str]:
@@ -99,12 +102,15 @@ def _build_table() -> dict[int, str]:
 
 
 _TABLE = _build_table()
+#: Invisible characters deleted inside words: soft hyphen, word joiner ("ex\u00adpensive").
+_DELETED = {0x00AD: None, 0x2060: None}
 
 
 def normalise(text: str) -> str:
     """Normalised, lower-cased form of ``text`` that the tokeniser reads.
 
-    For ASCII text this is ``text.lower()`` with control characters as spaces.
+    For ASCII text this is ``text.lower()`` with control characters as spaces
+    and a backtick as an apostrophe.
     """
     return normalise_with_offsets(text)[0]
 
@@ -122,7 +128,8 @@ def normalise_with_offsets(text: str) -> tuple[str, np.ndarray | None]:
     """
     translated = text.translate(_TABLE)
     lowered = translated.lower()
-    if len(lowered) == len(text) and unicodedata.is_normalized("NFKC", translated):
+    if (len(lowered) == len(text) and unicodedata.is_normalized("NFKC", translated)
+            and "\u00ad" not in translated and "\u2060" not in translated):
         return lowered, None
     # Normalise base character + combining marks as one segment, so each output
     # character knows which input segment it came from.
@@ -132,7 +139,9 @@ def normalise_with_offsets(text: str) -> tuple[str, np.ndarray | None]:
     for index in range(1, len(translated) + 1):
         if index < len(translated) and unicodedata.combining(translated[index]):
             continue
-        piece = unicodedata.normalize("NFKC", translated[start:index]).lower()
+        piece = unicodedata.normalize("NFKC", translated[start:index]).lower().translate(_DELETED)
+        if piece.startswith("i\u0307"):  # "İ".lower() keeps a combining dot: "İzmir" is "izmir"
+            piece = "i" + piece[2:]
         pieces.append(piece)
         origin.extend([start] * len(piece))
         start = index
