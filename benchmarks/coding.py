@@ -143,7 +143,16 @@ def main() -> None:
 
     # warm-up on a few answers, so one-off imports (nltk's stemmer) are not timed
     ThemeCoder(lexicon).fit(answers[:50]).code(answers[:50])
-    baseline, _ = time_it(lambda: [re.findall(r"\w+", text.lower()) for text in answers])
+    baseline_kept, _ = time_it(lambda: [re.findall(r"\w+", text.lower()) for text in answers])
+
+    def findall_discarding():
+        for text in answers:
+            re.findall(r"\w+", text.lower())
+
+    # Keeping 24 M token strings makes Python's garbage collector work hard at 1 M answers, so the
+    # pass that throws each answer's tokens away is faster: the stricter baseline is the faster one.
+    baseline_discarded, _ = time_it(findall_discarding)
+    baseline = min(baseline_kept, baseline_discarded)
 
     def code_with_evidence():
         stream = tokenize_corpus(answers)
@@ -181,7 +190,8 @@ def main() -> None:
     coded_share = float((result.matrix.getnnz(axis=1) > 0).mean())
     print(f"answers with at least one theme: {coded_share:.1%}; counted matches per answer: "
           f"{len(result.evidence) / n:.2f}; dropped {result.dropped}")
-    print(f"baseline re.findall pass        {baseline:8.2f} s   ({n / baseline:,.0f} answers/s)")
+    print(f"baseline re.findall, tokens kept      {baseline_kept:8.2f} s")
+    print(f"baseline re.findall, tokens discarded {baseline_discarded:8.2f} s   (the faster is the baseline)")
     print(f"textkit code (with evidence)    {full:8.2f} s   ({n / full:,.0f} answers/s)  "
           f"ratio to baseline {full / baseline:.2f}x")
     print(f"textkit code (matrix only)      {matrix_only:8.2f} s   ({n / matrix_only:,.0f} answers/s)  "

@@ -62,15 +62,16 @@ def _mark_class() -> str:
 # vowel points) are not \w in Python: without them a word of those scripts would
 # fall apart into fragments.
 _LETTERS = f"[^\\W_]+(?:[{_mark_class()}]+[^\\W_]*)*"
-_WORD = f"{_LETTERS}(?:['\\-]{_LETTERS})*"
-_NUMBER = r"\d+(?:[.,:]\d+)+"
 _CURRENCY = r"[$€£¥₹]"
 _EMOJI = (r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF]"
           r"(?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*")
 _BREAK = r"[.!?;:,()\[\]\"]|-+"
 #: The one tokeniser pattern; documents and lexicon terms both go through it.
+# Words come first (most tokens are words, so most matches succeed on the first branch);
+# a digit run continues over ".", "," or ":" plus digits, so "3.50" and "10:30" stay whole.
+_WORD_OR_NUMBER = f"{_LETTERS}(?:['\\-]{_LETTERS}|(?<=\\d)[.,:]\\d+)*"
 TOKEN_PATTERN = re.compile(
-    f"{_NUMBER}|{_WORD}|{_CURRENCY}|{_EMOJI}|{_BREAK}|{DOCUMENT_SEPARATOR}"
+    f"{_WORD_OR_NUMBER}|{_CURRENCY}|{_EMOJI}|{_BREAK}|{DOCUMENT_SEPARATOR}"
 )
 _BREAK_PATTERN = re.compile(f"(?:{_BREAK})\\Z")
 
