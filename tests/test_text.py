@@ -338,3 +338,33 @@ def test_redact_names_whole_words_only():
     assert cleaned == "Ranger [name] [name] was great, [name] helped; Marlasson did not"
     assert redact(None) is None
     assert redact("no names here", names=[]) == "no names here"
+
+
+def test_negated_at_matches_a_plain_scan_of_each_answer():
+    # reference: the rule of the module docstring, written as a plain loop over each answer's tokens
+    import random
+
+    from textkit.text import CONTRAST_WORDS, is_break_token, is_negation_cue
+
+    rng = random.Random(11)
+    words = ["no", "not", "a", "b", "c", ".", ",", "but", "never", "x", "don't", "queue"]
+    docs = [" ".join(rng.choice(words) for _ in range(rng.randint(0, 14))) for _ in range(600)]
+    stream = tokenize_corpus(docs)
+    tokens = stream.vocabulary[stream.codes]
+    for window in (1, 3, 4):
+        expected = []
+        for d in range(stream.n_documents):
+            last_cue = None
+            for i in range(stream.doc_offsets[d], stream.doc_offsets[d + 1]):
+                token = tokens[i]
+                if is_break_token(token) or token in CONTRAST_WORDS:
+                    last_cue = None
+                    expected.append(False)
+                elif is_negation_cue(token):
+                    last_cue = i
+                    expected.append(False)
+                else:
+                    expected.append(last_cue is not None and i - last_cue <= window)
+        assert stream.negated_mask(window).tolist() == expected
+        picks = np.sort(np.random.default_rng(window).choice(stream.n_tokens, size=50, replace=False))
+        assert stream.negated_at(picks, window).tolist() == [expected[i] for i in picks]

@@ -433,7 +433,7 @@ class ThemeCoder(BaseEstimator):
         start, term, theme, length = (a[~is_exclusion] for a in (start, term, theme, length))
         n = stream.n_tokens
         window = self.negation_window if self.negation_window is not None else self.lexicon.negation_window
-        negated = stream.negated_mask(window)[start] & compiled.theme_drops_negated[theme]
+        negated = stream.negated_at(start, window) & compiled.theme_drops_negated[theme]
         excluded = _covers(ex_theme, ex_start, ex_length, n, theme, start, length) & ~negated
         contained = np.zeros(len(start), dtype=bool)
         alive = ~(negated | excluded)

@@ -259,14 +259,32 @@ class TokenStream:
         it in the same document with no break token or contrast word between.
         The cue itself is not negated.
         """
-        cue = self.vocabulary_flags(is_negation_cue)[self.codes]
-        stop = self.vocabulary_flags(lambda t: is_break_token(t) or t in CONTRAST_WORDS)[self.codes]
-        positions = np.arange(self.n_tokens, dtype=np.int64)
-        starts = np.zeros(self.n_tokens, dtype=bool)
-        starts[self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]] = True
-        last_cue = np.maximum.accumulate(np.where(cue, positions, -1))
-        last_stop = np.maximum.accumulate(np.where(stop | starts, positions, -1))
-        return (last_cue >= last_stop) & (last_cue >= 0) & (positions - last_cue <= window) & ~cue & ~stop
+        return self.negated_at(np.arange(self.n_tokens, dtype=np.int64), window)
+
+    def negated_at(self, positions: np.ndarray, window: int = 4) -> np.ndarray:
+        """:meth:`negated_mask` at the given token positions only, shape (len(positions),).
+
+        Looks up the nearest cue and the nearest scope end before each position
+        in the (sparse) lists of cue and stop positions, so coding pays for the
+        matches it checks rather than for every token of the corpus.
+        """
+        positions = np.asarray(positions, dtype=np.int64)
+        cue_flags = self.vocabulary_flags(is_negation_cue)
+        stop_flags = self.vocabulary_flags(lambda t: is_break_token(t) or t in CONTRAST_WORDS)
+        cue_positions = np.flatnonzero(cue_flags[self.codes])
+        document_starts = self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]
+        stop_positions = np.union1d(np.flatnonzero(stop_flags[self.codes]), document_starts)
+
+        def last_at_or_before(sorted_positions: np.ndarray) -> np.ndarray:
+            index = np.searchsorted(sorted_positions, positions, side="right") - 1
+            return np.where(index >= 0, sorted_positions[np.maximum(index, 0)] if len(sorted_positions)
+                            else -1, -1)
+
+        last_cue = last_at_or_before(cue_positions)
+        last_stop = last_at_or_before(stop_positions)
+        codes = self.codes[positions]
+        return ((last_cue >= last_stop) & (last_cue >= 0) & (positions - last_cue <= window)
+                & ~cue_flags[codes] & ~stop_flags[codes])
 
 
 def prepare_corpus(texts: Sequence[str | None]) -> tuple[str, dict[int, np.ndarray]]:
