@@ -123,7 +123,9 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     for q_index, column in enumerate(config.questions.values()):
         texts = frame[column]
         mask = answered_mask(texts, config.non_answers)
-        values = texts.astype(object).where(pd.Series(mask, index=texts.index), None).to_numpy(dtype=object)
+        # answers read as numbers (a Parquet or SPSS column of "5"s) are still answers: code their text
+        as_text = texts.astype("string").astype(object)
+        values = as_text.where(pd.Series(mask, index=texts.index), None).to_numpy(dtype=object)
         raw_texts[q_index::n_questions] = values
         answered[q_index::n_questions] = mask
     text_list = raw_texts.tolist()
