@@ -217,3 +217,18 @@ def test_prevalence_from_the_coded_folder(demo_run, tmp_path, capsys):
     table = pd.read_csv(tmp_path / "prevalence.csv")
     assert {"estimate", "ci_low", "ci_high", "flag"} <= set(table.columns)
     assert set(table["flag"]) <= {"ok", "caution", "suppress"}
+
+
+def test_code_reads_other_formats_and_codes_every_answer(tmp_path, capsys):
+    frame = pd.DataFrame({"rid": ["a1", "a2", "a3"], "txt": ["The queue was far too long", None, "Parking fees"],
+                          "score": [5, 7, 9], "w": [1.0, 2.0, 0.5]})
+    frame.to_parquet(tmp_path / "s.parquet")
+    config = tmp_path / "s.yaml"
+    config.write_text(f"survey: s.parquet\nid: rid\nquestions: [txt, score]\nweight: w\nlexicon: {LEXICON}\n",
+                      encoding="utf-8")
+    code, _, stderr = run(["code", str(config), "--out", str(tmp_path / "out"), "--quiet"], capsys)
+    assert code == 0, stderr
+    coded = pd.read_parquet(tmp_path / "out" / "coded.parquet")
+    assert coded["question"].tolist() == ["txt", "score"] * 3
+    assert coded["answered"].tolist() == [1, 1, 0, 1, 1, 1]  # a number is an answer, a missing text is not
+    assert coded.loc[0, "queues"] == 1 and coded.loc[4, "parking"] == 1
