@@ -368,3 +368,12 @@ def test_negated_at_matches_a_plain_scan_of_each_answer():
         assert stream.negated_mask(window).tolist() == expected
         picks = np.sort(np.random.default_rng(window).choice(stream.n_tokens, size=50, replace=False))
         assert stream.negated_at(picks, window).tolist() == [expected[i] for i in picks]
+
+
+def test_redact_all_equals_redact_on_each_text():
+    from textkit.text import redact, redact_all
+
+    texts = ["queue", "mail me at ann@example.org", None, "call 07700 900123", "ref BK20260412345",
+             "see www.halvessa-isles.example", "3.50 was fine", "plain words only"]
+    # reference: redact() applied one text at a time
+    assert redact_all(texts) == [redact(t) if t is not None else None for t in texts]

@@ -21,7 +21,7 @@ from .errors import InputError
 from .lexicon import Lexicon, load_lexicon
 from .output import csv_writer, file_sha256, parquet_writer, write_outputs
 from .readers import answered_mask, read_survey
-from .text import TokenStream, redact, tokenize_corpus
+from .text import TokenStream, redact_all, tokenize_corpus
 
 #: Columns of ``evidence.csv``.
 EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "matched_text"]
@@ -188,7 +188,7 @@ def _evidence_table(coded: pd.DataFrame, result: CodingResult) -> pd.DataFrame:
         "term": result.evidence["term"].to_numpy(),
         "start": result.evidence["start"].to_numpy(),
         "end": result.evidence["end"].to_numpy(),
-        "matched_text": [redact(text) for text in result.evidence["matched_text"].tolist()],
+        "matched_text": redact_all(result.evidence["matched_text"].tolist()),
     })
     return evidence[EVIDENCE_COLUMNS]
 

@@ -438,3 +438,16 @@ def redact(text: str, names: Iterable[str] = ()) -> str:
     if words:
         text = re.sub(r"\b(?:" + "|".join(words) + r")\b", "[name]", text, flags=re.IGNORECASE)
     return text
+
+
+_MAY_NEED_REDACTION = re.compile(r"[@.\d]")
+
+
+def redact_all(texts: Sequence[str | None]) -> list[str | None]:
+    """:func:`redact` over many texts; only texts that can hold a contact detail are scanned.
+
+    Every pattern :func:`redact` removes needs an "@", a "." or a digit, so
+    the other texts (most short evidence spans) are returned as they are.
+    """
+    search = _MAY_NEED_REDACTION.search
+    return [redact(text) if isinstance(text, str) and search(text) else text for text in texts]
