@@ -44,38 +44,52 @@ class CodedSurvey:
         reached only through its child is not counted again) and ``uncoded`` (1 when answered but no theme matched).
     texts : Series
         The answer texts aligned with ``coded`` rows (non-answers as None).
-    theme_matrix : csr_matrix of shape (n_rows, n_themes), int8
     evidence : DataFrame
         ``EVIDENCE_COLUMNS``; ``matched_text`` is redacted.
     coverage : DataFrame
         ``COVERAGE_COLUMNS``: per question and theme, responses coded and their
         unweighted and weighted share of the answered responses.
-    stream : TokenStream
-        Tokens of ``texts``.
-    themes : tuple of str
-    roles : dict
-        Which column plays which part (``SurveyConfig.roles()``).
     lexicon : Lexicon
     config : SurveyConfig
+    result : CodingResult
+        The coder's output over ``texts`` (matrix, hits, evidence, token stream).
     notes : list of str
         Things the user should know (encoding fallbacks, zero weights...).
     manifest : dict
         Inputs' hashes and settings that reproduce the run.
+
+    ``theme_matrix``, ``stream``, ``themes`` and ``roles`` are read from
+    ``result`` and ``config``.
     """
 
     coded: pd.DataFrame
     texts: pd.Series
-    theme_matrix: sp.csr_matrix
     evidence: pd.DataFrame
     coverage: pd.DataFrame
-    stream: TokenStream
-    themes: tuple[str, ...]
-    roles: dict
     lexicon: Lexicon
     config: SurveyConfig
     result: CodingResult
     notes: list[str] = field(default_factory=list)
     manifest: dict = field(default_factory=dict)
+
+    @property
+    def theme_matrix(self) -> sp.csr_matrix:
+        """(n_rows, n_themes) int8 0/1 theme matrix aligned with ``coded`` rows."""
+        return self.result.matrix
+
+    @property
+    def stream(self) -> TokenStream:
+        """Tokens of ``texts``."""
+        return self.result.stream
+
+    @property
+    def themes(self) -> tuple[str, ...]:
+        return self.result.themes
+
+    @property
+    def roles(self) -> dict:
+        """Which column plays which part (``SurveyConfig.roles()``)."""
+        return self.config.roles()
 
 
 def _no_progress(step: str) -> None:
@@ -152,9 +166,8 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
                    "evidence": len(evidence), "dropped_matches": result.dropped},
         "notes": list(data.notes),
     }
-    return CodedSurvey(coded=coded, texts=pd.Series(raw_texts, name="text"), theme_matrix=result.matrix,
-                       evidence=evidence, coverage=coverage, stream=stream, themes=tuple(lex.ids),
-                       roles=config.roles(), lexicon=lex, config=config, result=result,
+    return CodedSurvey(coded=coded, texts=pd.Series(raw_texts, name="text"), evidence=evidence,
+                       coverage=coverage, lexicon=lex, config=config, result=result,
                        notes=list(data.notes), manifest=manifest)
 
 
@@ -197,25 +210,23 @@ def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig)
     themes = list(lexicon.ids)
     weights = coded[config.weight].to_numpy(dtype=float) if config.weight else np.ones(len(coded))
     answered = coded["answered"].to_numpy(dtype=bool)
+    columns = themes + ["uncoded"]  # "answered, no theme" is one more 0/1 column to share out
     frames = []
     for question in config.questions:
         in_question = (coded["question"] == question).to_numpy() & answered
-        values = coded.loc[in_question, themes].to_numpy(dtype=float)
+        values = coded.loc[in_question, columns].to_numpy(dtype=float)
         w = weights[in_question]
         n_answered = int(in_question.sum())
-        coded_counts = values.sum(axis=0)
-        weighted = (w @ values) / w.sum() if w.sum() > 0 else np.full(len(themes), np.nan)
-        share = coded_counts / n_answered if n_answered else np.full(len(themes), np.nan)
-        uncoded = coded.loc[in_question, "uncoded"].to_numpy(dtype=float)
+        counts = values.sum(axis=0)
         frames.append(pd.DataFrame({
             "question": question,
             "theme": themes + ["(uncoded)"],
             "label": [t.label for t in lexicon.themes] + ["Answered, no theme"],
             "parent": [t.parent or "" for t in lexicon.themes] + [""],
-            "responses_coded": np.append(coded_counts, uncoded.sum()).astype(np.int64),
+            "responses_coded": counts.astype(np.int64),
             "answered": n_answered,
-            "share": np.append(share, uncoded.mean() if n_answered else np.nan),
-            "weighted_share": np.append(weighted, (w @ uncoded) / w.sum() if w.sum() > 0 else np.nan),
+            "share": counts / n_answered if n_answered else np.nan,
+            "weighted_share": (w @ values) / w.sum() if w.sum() > 0 else np.nan,
         }))
     return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
 
