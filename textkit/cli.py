@@ -9,7 +9,6 @@ and exit status 2. Heavy libraries are imported inside the commands, so
 from __future__ import annotations
 
 import importlib
-import importlib.util
 import sys
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -31,23 +30,14 @@ class _Commands(click.Group):
     """A group that imports the modules of some commands only when they are used."""
 
     def list_commands(self, ctx: click.Context) -> list[str]:
-        return sorted(set(super().list_commands(ctx)) | set(self._available()))
+        return sorted(set(super().list_commands(ctx)) | set(_LAZY_COMMANDS))
 
     def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
         command = super().get_command(ctx, name)
-        if command is not None or name not in self._available():
+        if command is not None or name not in _LAZY_COMMANDS:
             return command
         module, attribute = _LAZY_COMMANDS[name].split(":")
         return getattr(importlib.import_module(module), attribute)
-
-    @staticmethod
-    def _available() -> list[str]:
-        found = []
-        for name, target in _LAZY_COMMANDS.items():
-            module = target.split(":")[0]
-            if importlib.util.find_spec(module) is not None:
-                found.append(name)
-        return found
 
 
 @contextmanager

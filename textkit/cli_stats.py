@@ -14,20 +14,15 @@ from typing import Any
 import click
 
 
-def _load_coded(source: Path) -> tuple[Any, dict, list[str], dict]:
+def _load_coded(source: Path, quiet: bool) -> tuple[Any, dict, list[str], dict]:
     """(coded frame, roles, themes, input record) from a coded folder, coded file or config."""
-
-    suffix = source.suffix.lower()
-    if suffix in (".yaml", ".yml"):
+    if source.suffix.lower() in (".yaml", ".yml"):
+        from .cli import steps
         from .pipeline import code_survey
 
-        survey = code_survey(source)
-        roles = dict(survey.roles)
-        config = getattr(survey, "config", None)
-        for key in ("single_psu", "nest", "require_clusters"):
-            if key not in roles and config is not None and hasattr(config, key):
-                roles[key] = getattr(config, key)
-        return survey.coded, roles, list(survey.themes), {"config": str(source)}
+        with steps(5, quiet) as progress:
+            survey = code_survey(source, progress=progress)
+        return survey.coded, survey.roles, list(survey.themes), {"config": str(source)}
     from .output import file_sha256
     from .pipeline import load_coded
 
@@ -76,7 +71,7 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, method: str | None,
     if caution_rse is not None:
         rule = dataclasses.replace(rule, caution_rse=caution_rse)
 
-    coded, roles, themes, record = _load_coded(coded_or_config)
+    coded, roles, themes, record = _load_coded(coded_or_config, quiet)
     source = str(record.get("coded", {}).get("path", coded_or_config))
     id_column = "response_id" if "response_id" in coded.columns else roles.get("id")
     design = SurveyDesign.from_frame(
