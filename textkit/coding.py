@@ -44,7 +44,7 @@ from sklearn.base import BaseEstimator
 
 from .errors import InputError
 from .lexicon import Lexicon
-from .text import TokenStream, tokenize_corpus
+from .text import TokenStream, snowball_stemmer, tokenize_corpus
 
 _MAX_CODEPOINT = "\U0010ffff"
 #: Snowball English special words whose stem is not (nearly) a prefix of them: stem -> word.
@@ -160,24 +160,27 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
     )
 
 
-def _stemmer():
-    from nltk.stem.snowball import SnowballStemmer  # imported late: nltk is slow to import
+def _prefix_ranges(vocab: np.ndarray, prefixes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """[low, high) index ranges of the sorted ``vocab`` entries starting with each prefix."""
+    return (np.searchsorted(vocab, prefixes, side="left"),
+            np.searchsorted(vocab, np.char.add(prefixes, _MAX_CODEPOINT), side="left"))
 
-    return SnowballStemmer("english")
 
+def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray, stem_cache: dict[str, str],
+                      language: str) -> sp.csr_matrix:
+    """Sparse (n_vocabulary, n_patterns) bool: vocabulary word v matches pattern p.
 
-def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
-                      stem_cache: dict[str, str]) -> sp.csr_matrix:
-    """Sparse (n_vocabulary, n_patterns) bool: vocabulary word v matches pattern p."""
+    Inflection-insensitive patterns compare Snowball stems; for a language
+    without a Snowball stemmer they match the exact word only.
+    """
     vocab = vocabulary.astype(str) if len(vocabulary) else np.zeros(0, dtype="<U1")
     vocab_rows: list[np.ndarray] = []
     pattern_cols: list[np.ndarray] = []
     inflect_words: list[tuple[int, str]] = []
     words = np.array([p[0] for p in compiled.patterns], dtype=str)
     is_prefix = np.array([p[1] for p in compiled.patterns], dtype=bool)
-    lows = np.searchsorted(vocab, words, side="left")
-    highs = np.where(is_prefix, np.searchsorted(vocab, np.char.add(words, _MAX_CODEPOINT), side="left"),
-                     np.searchsorted(vocab, words, side="right"))
+    lows, prefix_highs = _prefix_ranges(vocab, words)
+    highs = np.where(is_prefix, prefix_highs, np.searchsorted(vocab, words, side="right"))
     for pattern_id, (word, _prefix, inflect) in enumerate(compiled.patterns):
         low, high = lows[pattern_id], highs[pattern_id]
         if high > low:
@@ -185,13 +188,12 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
             pattern_cols.append(np.full(high - low, pattern_id))
         if inflect:
             inflect_words.append((pattern_id, word))
-    if inflect_words:
-        stem = None
+    stem = snowball_stemmer(language) if inflect_words else None
+    if stem is not None:
         stems_wanted: dict[str, list[int]] = {}
         for pattern_id, word in inflect_words:
             if word not in stem_cache:
-                stem = stem or _stemmer()
-                stem_cache[word] = stem.stem(word)
+                stem_cache[word] = stem(word)
             stems_wanted.setdefault(stem_cache[word], []).append(pattern_id)
         # A Snowball stem is, but for its last letter (happy -> happi, fly -> fli), a
         # prefix of the word: only vocabulary words starting with that head can share
@@ -199,19 +201,17 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
         heads = sorted({s[: max(2, len(s) - 1)] for s in stems_wanted}
                        | {_IRREGULAR_STEMS[s] for s in stems_wanted if s in _IRREGULAR_STEMS})
         head_array = np.array(heads, dtype=str)
-        head_lows = np.searchsorted(vocab, head_array)
-        head_highs = np.searchsorted(vocab, np.char.add(head_array, _MAX_CODEPOINT))
+        head_lows, head_highs = _prefix_ranges(vocab, head_array)
         candidates = np.unique(np.concatenate(
             [np.arange(low, high) for low, high in zip(head_lows, head_highs, strict=True)]
         )) if heads else np.zeros(0, dtype=np.int64)
         for index in candidates:
             token = vocab[index]
             if token not in stem_cache:
-                stem = stem or _stemmer()
-                stem_cache[token] = stem.stem(token)
-            for pattern_id in stems_wanted.get(stem_cache[token], ()):
-                vocab_rows.append(np.array([index]))
-                pattern_cols.append(np.array([pattern_id]))
+                stem_cache[token] = stem(token)
+            shared = stems_wanted.get(stem_cache[token], ())
+            vocab_rows.append(np.full(len(shared), index))
+            pattern_cols.append(np.asarray(shared, dtype=np.int64))
     if vocab_rows:
         rows = np.concatenate(vocab_rows)
         cols = np.concatenate(pattern_cols)
@@ -357,7 +357,8 @@ class ThemeCoder(BaseEstimator):
         stream = documents if isinstance(documents, TokenStream) else tokenize_corpus(documents, offsets=False)
         self._compiled = _compile(self.lexicon)
         self._stem_cache: dict[str, str] = {}
-        pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._stem_cache)
+        pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._stem_cache,
+                                           self.lexicon.language)
         self._fitted_patterns = pattern_matrix
         per_pattern = np.asarray(pattern_matrix.sum(axis=0)).ravel()
         compiled = self._compiled
@@ -423,7 +424,8 @@ class ThemeCoder(BaseEstimator):
         if stream.vocabulary is self.vocabulary_:  # coding the fitted documents themselves
             pattern_matrix = self._fitted_patterns
         else:
-            pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache)
+            pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache,
+                                               self.lexicon.language)
         start, term = _match_terms(stream, compiled, pattern_matrix)
         theme = compiled.term_theme[term]
         length = compiled.term_lengths[term]

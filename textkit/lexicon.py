@@ -50,7 +50,7 @@ from typing import TYPE_CHECKING
 import yaml
 
 from .errors import LexiconError
-from .text import is_negation_cue, normalise, word_tokens
+from .text import is_negation_cue, normalise, snowball_stemmer, word_tokens
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -80,11 +80,6 @@ _NULL_TAG = "tag:yaml.org,2002:null"
 _BOOL_TAG = "tag:yaml.org,2002:bool"
 _INT_TAG = "tag:yaml.org,2002:int"
 # ISO 639-1 code -> Snowball stemmer language (only used by lint to spot inflection twins).
-_SNOWBALL_LANGUAGES = {
-    "en": "english", "da": "danish", "de": "german", "es": "spanish", "fi": "finnish",
-    "fr": "french", "hu": "hungarian", "it": "italian", "nb": "norwegian", "nl": "dutch",
-    "no": "norwegian", "pt": "portuguese", "ro": "romanian", "ru": "russian", "sv": "swedish",
-}
 
 
 @dataclass(frozen=True)
@@ -676,13 +671,9 @@ def term_words(text: str) -> tuple[tuple[str, ...], str | None]:
 
 @lru_cache(maxsize=8)
 def _stemmer(language: str):
-    """Snowball stem function for ``language``, or None (lint then compares words only)."""
-    name = _SNOWBALL_LANGUAGES.get(language.split("-")[0].split("_")[0].lower())
-    if name is None:
-        return None
-    from nltk.stem.snowball import SnowballStemmer  # slow import: only when linting
-
-    return lru_cache(maxsize=None)(SnowballStemmer(name).stem)
+    """Cached Snowball stem function for ``language``, or None (lint then compares words only)."""
+    stem = snowball_stemmer(language)
+    return None if stem is None else lru_cache(maxsize=None)(stem)
 
 
 def _word_keys(term: Term, stem) -> tuple[tuple[str, str], ...]:

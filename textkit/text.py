@@ -37,7 +37,7 @@ import re
 import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache, lru_cache
 from importlib import resources
 
 import numpy as np
@@ -192,6 +192,25 @@ def token_spans(text: str) -> list[tuple[int, int]]:
         return spans
     end_origin = _end_origin(origin)
     return [(int(origin[start]), int(end_origin[end])) for start, end in spans]
+
+
+#: Lexicon ``language`` codes with a Snowball stemmer in nltk (which needs no data download).
+SNOWBALL_LANGUAGES = {
+    "en": "english", "da": "danish", "de": "german", "es": "spanish", "fi": "finnish",
+    "fr": "french", "hu": "hungarian", "it": "italian", "nb": "norwegian", "nl": "dutch",
+    "no": "norwegian", "pt": "portuguese", "ro": "romanian", "ru": "russian", "sv": "swedish",
+}
+
+
+@cache
+def snowball_stemmer(language: str):
+    """The Snowball ``stem`` function for a language code ("en", "de-AT"...), or None if nltk has none."""
+    name = SNOWBALL_LANGUAGES.get(language.split("-")[0].split("_")[0].lower())
+    if name is None:
+        return None
+    from nltk.stem.snowball import SnowballStemmer  # imported late: nltk is slow to import
+
+    return SnowballStemmer(name).stem
 
 
 @lru_cache(maxsize=1)
