@@ -101,9 +101,9 @@ def child(n: int, mode: str) -> None:
     """Run in a fresh process: generate, optionally code, print peak RSS."""
     answers, lexicon_text = make_answers(n)
     if mode == "code":
-        from textkit.coding import ThemeCoder
-        from textkit.lexicon import parse_lexicon
-        from textkit.text import tokenize_corpus
+        from textkit.coding.coder import ThemeCoder
+        from textkit.coding.lexicon import parse_lexicon
+        from textkit.text.tokens import tokenize_corpus
 
         stream = tokenize_corpus(answers)
         coder = ThemeCoder(parse_lexicon(lexicon_text)).fit(stream)
@@ -130,9 +130,9 @@ def main() -> None:
 
     import pandas as pd
 
-    from textkit.coding import ThemeCoder
-    from textkit.lexicon import parse_lexicon
-    from textkit.text import tokenize_corpus
+    from textkit.coding.coder import ThemeCoder
+    from textkit.coding.lexicon import parse_lexicon
+    from textkit.text.tokens import tokenize_corpus
 
     n = options.n
     answers, lexicon_text = make_answers(n)

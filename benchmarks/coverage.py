@@ -61,8 +61,8 @@ def coverage(n: int, reps: int, rng: np.random.Generator, confidence: float = 0.
     """Coverage per prevalence and method for samples of about ``n``."""
     from scipy import sparse
 
-    from textkit.design import SurveyDesign
-    from textkit.estimate import CI_METHODS, DEFAULT_RULE, confidence_interval, domain_totals
+    from textkit.stats.design import SurveyDesign
+    from textkit.stats.estimate import CI_METHODS, DEFAULT_RULE, confidence_interval, domain_totals
 
     frame = simulate(n, reps, rng)
     design = SurveyDesign.from_frame(frame, "weight", "stratum", "psu", wave="rep", nest=True)
@@ -87,7 +87,7 @@ def coverage(n: int, reps: int, rng: np.random.Generator, confidence: float = 0.
 
 def markdown(results: pd.DataFrame) -> str:
     """A table: one row per prevalence x n, columns per method (suppression of the default method)."""
-    from textkit.estimate import DEFAULT_METHOD
+    from textkit.stats.estimate import DEFAULT_METHOD
 
     methods = list(dict.fromkeys(results["method"]))
     head = "| p | n | df | suppr | " + " | ".join(f"{m} cover | {m} cover\\|shown" for m in methods) + " |"
@@ -112,7 +112,7 @@ def main() -> None:
     results = pd.concat([coverage(n, args.reps, rng) for n in args.sizes], ignore_index=True)
     print(f"{args.reps} replications per cell, seed {args.seed}, {time.perf_counter() - start:.0f} s")
     print(markdown(results))
-    from textkit.estimate import DEFAULT_METHOD
+    from textkit.stats.estimate import DEFAULT_METHOD
 
     default = results[results["method"] == DEFAULT_METHOD].set_index(["p", "n"])["suppressed"]
     shown = results[results.set_index(["p", "n"]).index.map(default).to_numpy() <= 0.5]

@@ -29,9 +29,9 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from textkit.keyness import compare  # noqa: E402
-from textkit.ngrams import document_term_matrix  # noqa: E402
-from textkit.text import default_stop_words, tokenize_corpus  # noqa: E402
+from textkit.discover.keyness import compare  # noqa: E402
+from textkit.text.ngrams import document_term_matrix  # noqa: E402
+from textkit.text.tokens import default_stop_words, tokenize_corpus  # noqa: E402
 
 
 def peak_rss_gb() -> float:

@@ -57,8 +57,8 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=20261202)
     args = parser.parse_args()
 
-    from textkit.design import SurveyDesign
-    from textkit.estimate import analyse
+    from textkit.stats.design import SurveyDesign
+    from textkit.stats.estimate import analyse
 
     frame = simulate(args.n, args.themes, args.groups, args.strata, args.psus, args.seed)
     themes = [c for c in frame.columns if c.startswith("theme_")]

@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 from sklearn.metrics import cohen_kappa_score, f1_score, precision_score, recall_score
 
-from textkit.agreement import agreement_table, codes_to_matrix, compare_with_hand_codes
+from textkit.coding.agreement import agreement_table, codes_to_matrix, compare_with_hand_codes
+from textkit.coding.lexicon import load_lexicon, parse_lexicon
 from textkit.errors import InputError
-from textkit.lexicon import load_lexicon, parse_lexicon
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -11,7 +11,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from textkit.cli import cli, main
+from textkit.cli.main import cli, main
 from textkit.pipeline import COVERAGE_COLUMNS, EVIDENCE_COLUMNS
 
 ROOT = Path(__file__).resolve().parents[1]

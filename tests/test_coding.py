@@ -16,10 +16,10 @@ from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import FunctionTransformer
 
-from textkit.coding import CodingResult, ThemeCoder
+from textkit.coding.coder import CodingResult, ThemeCoder
+from textkit.coding.lexicon import load_lexicon, parse_lexicon
 from textkit.errors import InputError
-from textkit.lexicon import load_lexicon, parse_lexicon
-from textkit.text import is_break_token, is_negation_cue, token_spans, tokenize, tokenize_corpus
+from textkit.text.tokens import is_break_token, is_negation_cue, token_spans, tokenize, tokenize_corpus
 
 STARTER = Path(__file__).resolve().parents[1] / "lexicons" / "visitor_experience.yaml"
 

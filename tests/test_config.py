@@ -7,14 +7,14 @@ from pathlib import Path
 
 import pytest
 
-from textkit.config import (
+from textkit.errors import InputError
+from textkit.io.config import (
     DEFAULT_NON_ANSWERS,
     SurveyConfig,
     config_from_mapping,
     load_config,
     normalise_answer,
 )
-from textkit.errors import InputError
 
 FULL = """\
 survey: data/visitors.csv

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from textkit.estimate import DEFAULT_METHOD
+from textkit.stats.estimate import DEFAULT_METHOD
 
 
 def _study():

@@ -13,10 +13,10 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from textkit.config import load_config
-from textkit.design import SurveyDesign
-from textkit.estimate import prevalence
-from textkit.readers import read_survey
+from textkit.io.config import load_config
+from textkit.io.readers import read_survey
+from textkit.stats.design import SurveyDesign
+from textkit.stats.estimate import prevalence
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_comments"
 GROUPS = ["market", "age_band", "trip_purpose", "season", "site"]

@@ -6,8 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from textkit.design import SurveyDesign
 from textkit.errors import DesignError
+from textkit.stats.design import SurveyDesign
 
 
 def frame() -> pd.DataFrame:

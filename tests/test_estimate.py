@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from textkit.design import SurveyDesign
 from textkit.errors import AnalysisError, DesignError, TextkitError
-from textkit.estimate import (
+from textkit.stats.design import SurveyDesign
+from textkit.stats.estimate import (
     ALL,
     COMPARISON_COLUMNS,
     NCHS_LIKE,
@@ -341,7 +341,7 @@ def test_cli_writes_the_three_tables(tmp_path):
 
     from click.testing import CliRunner
 
-    from textkit.cli_stats import prevalence_command
+    from textkit.cli.stats import prevalence_command
 
     coded, _ = survey()
     folder = tmp_path / "coded"

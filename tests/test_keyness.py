@@ -13,8 +13,7 @@ import yaml
 from scipy import stats
 from scipy.stats import chi2_contingency
 
-from textkit.errors import AnalysisError
-from textkit.keyness import (
+from textkit.discover.keyness import (
     KEYNESS_COLUMNS,
     REST,
     TERM_COLUMNS,
@@ -23,11 +22,11 @@ from textkit.keyness import (
     keyness,
     log_odds_dirichlet,
     log_ratio,
-    render_suggestions_yaml,
-    suggest_terms,
 )
-from textkit.ngrams import document_term_matrix
-from textkit.text import tokenize_corpus
+from textkit.discover.suggest import render_suggestions_yaml, suggest_terms
+from textkit.errors import AnalysisError
+from textkit.text.ngrams import document_term_matrix
+from textkit.text.tokens import tokenize_corpus
 
 FILLER = ["beach", "view", "ferry", "cafe", "harbour", "market", "walk", "sunset", "museum", "dinner", "boat"]
 
@@ -446,7 +445,7 @@ def write_mini_survey(folder: Path) -> Path:
 
 @pytest.mark.skipif(not PIPELINE, reason="textkit.pipeline not available yet")
 def test_cli_keyness_and_suggest(tmp_path, capsys):
-    from textkit.cli import main
+    from textkit.cli.main import main
 
     config = write_mini_survey(tmp_path)
     out = tmp_path / "out"
@@ -479,7 +478,7 @@ def test_cli_keyness_and_suggest(tmp_path, capsys):
     (["--question", "best_part"], "no question 'best_part'"),
 ])
 def test_cli_bad_input_is_one_line_exit_2(tmp_path, capsys, extra, message):
-    from textkit.cli import main
+    from textkit.cli.main import main
 
     config = write_mini_survey(tmp_path)
     assert main(["keyness", str(config), "--out", str(tmp_path / "out"), "--quiet", *extra]) == 2

@@ -10,16 +10,15 @@ import numpy as np
 import pytest
 import scipy.sparse
 
-from textkit.errors import LexiconError
-from textkit.lexicon import (
+from textkit.coding.lexicon import (
     LINT_COLUMNS,
     Lexicon,
-    format_lint,
-    lint_lexicon,
     load_lexicon,
     parse_lexicon,
     term_words,
 )
+from textkit.coding.lint import format_lint, lint_lexicon
+from textkit.errors import LexiconError
 
 STARTER = Path(__file__).resolve().parents[1] / "lexicons" / "visitor_experience.yaml"
 

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from sklearn.feature_extraction.text import CountVectorizer
 
-from textkit.ngrams import document_term_matrix, phrase_parts
-from textkit.text import (
+from textkit.text.ngrams import document_term_matrix, phrase_parts
+from textkit.text.tokens import (
     TokenStream,
     default_stop_words,
     is_break_token,

@@ -12,9 +12,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from textkit.config import config_from_mapping, normalise_answer
 from textkit.errors import InputError
-from textkit.readers import MISSING_LABEL, SurveyData, answered_mask, read_survey, read_table
+from textkit.io.config import config_from_mapping, normalise_answer
+from textkit.io.readers import MISSING_LABEL, SurveyData, answered_mask, read_survey, read_table
 
 # Invented survey: markets, places and answers are made up.
 HEADER = "response_id,market,comment,weight"

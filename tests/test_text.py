@@ -11,18 +11,17 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from sklearn.feature_extraction.text import CountVectorizer
 
-from textkit import text
-from textkit.text import (
+from textkit.text import tokens as text
+from textkit.text.redact import REDACTION_LABELS, redact
+from textkit.text.tokens import (
     DOCUMENT_SEPARATOR,
     NEGATION_CUES,
-    REDACTION_LABELS,
     TokenStream,
     default_stop_words,
     is_break_token,
     is_negation_cue,
     normalise,
     normalise_with_offsets,
-    redact,
     token_spans,
     tokenize,
     tokenize_corpus,
@@ -344,7 +343,7 @@ def test_negated_at_matches_a_plain_scan_of_each_answer():
     # reference: the rule of the module docstring, written as a plain loop over each answer's tokens
     import random
 
-    from textkit.text import CONTRAST_WORDS, is_break_token, is_negation_cue
+    from textkit.text.tokens import CONTRAST_WORDS, is_break_token, is_negation_cue
 
     rng = random.Random(11)
     words = ["no", "not", "a", "b", "c", ".", ",", "but", "never", "x", "don't", "queue"]
@@ -371,7 +370,7 @@ def test_negated_at_matches_a_plain_scan_of_each_answer():
 
 
 def test_redact_all_equals_redact_on_each_text():
-    from textkit.text import redact, redact_all
+    from textkit.text.redact import redact, redact_all
 
     texts = ["queue", "mail me at ann@example.org", None, "call 07700 900123", "ref BK20260412345",
              "see www.halvessa-isles.example", "3.50 was fine", "plain words only"]

@@ -15,13 +15,14 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
-from .coding import CodingResult, ThemeCoder
-from .config import SurveyConfig, load_config
+from .coding.coder import CodingResult, ThemeCoder
+from .coding.lexicon import Lexicon, load_lexicon
 from .errors import InputError
-from .lexicon import Lexicon, load_lexicon
-from .output import csv_writer, file_sha256, parquet_writer, write_outputs
-from .readers import answered_mask, read_survey
-from .text import TokenStream, redact_all, tokenize_corpus
+from .io.config import SurveyConfig, load_config
+from .io.output import csv_writer, file_sha256, parquet_writer, write_outputs
+from .io.readers import answered_mask, read_survey
+from .text.redact import redact_all
+from .text.tokens import TokenStream, tokenize_corpus
 
 #: Columns of ``evidence.csv``.
 EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "matched_text"]
@@ -251,7 +252,7 @@ def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
     """
     import json
 
-    from .readers import read_table
+    from .io.readers import read_table
 
     source = Path(path)
     if source.is_dir():

@@ -35,7 +35,7 @@ from collections.abc import Collection
 import numpy as np
 import scipy.sparse as sp
 
-from .text import TokenStream, default_stop_words, is_break_token, is_negation_cue
+from .tokens import TokenStream, default_stop_words, is_break_token, is_negation_cue
 
 _INT64_MAX = np.iinfo(np.int64).max
 

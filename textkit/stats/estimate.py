@@ -55,8 +55,8 @@ import numpy as np
 import pandas as pd
 from scipy import sparse, stats
 
+from ..errors import AnalysisError
 from .design import SurveyDesign
-from .errors import AnalysisError
 
 #: Label of totals (group variable and group) and pooled waves.
 ALL = "(all)"

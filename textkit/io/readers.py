@@ -37,8 +37,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..errors import InputError
 from .config import SURVEY_FORMATS, SurveyConfig, normalise_answer, reading_option_misfit, survey_format
-from .errors import InputError
 from .output import file_sha256
 
 #: Label given to a missing wave or group value.

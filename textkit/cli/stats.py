@@ -17,14 +17,14 @@ import click
 def _load_coded(source: Path, quiet: bool) -> tuple[Any, dict, list[str], dict]:
     """(coded frame, roles, themes, input record) from a coded folder, coded file or config."""
     if source.suffix.lower() in (".yaml", ".yml"):
-        from .cli import steps
-        from .pipeline import code_survey
+        from ..pipeline import code_survey
+        from .main import steps
 
         with steps(5, quiet) as progress:
             survey = code_survey(source, progress=progress)
         return survey.coded, survey.roles, list(survey.themes), {"config": str(source)}
-    from .output import file_sha256
-    from .pipeline import load_coded
+    from ..io.output import file_sha256
+    from ..pipeline import load_coded
 
     frame, manifest, data_path = load_coded(source)
     record = {"coded": {"path": str(data_path), "sha256": file_sha256(data_path)}}
@@ -55,10 +55,10 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, method: str | None,
     """
     import dataclasses
 
-    from .design import SurveyDesign
-    from .errors import AnalysisError
-    from .estimate import DEFAULT_METHOD, DEFAULT_RULE, RULES, analyse
-    from .output import csv_writer, write_outputs
+    from ..errors import AnalysisError
+    from ..io.output import csv_writer, write_outputs
+    from ..stats.design import SurveyDesign
+    from ..stats.estimate import DEFAULT_METHOD, DEFAULT_RULE, RULES, analyse
 
     if rule_name is None:
         rule = DEFAULT_RULE

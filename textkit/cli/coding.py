@@ -1,81 +1,18 @@
-"""Command line: a thin face over the Python API.
+"""Command line for coding: ``textkit code``, ``textkit lexicon check``, ``textkit agreement``.
 
-Each command parses its options, calls public functions and prints a short
-summary. Any :class:`textkit.errors.TextkitError` becomes one line on stderr
-and exit status 2. Heavy libraries are imported inside the commands, so
-``textkit --help`` starts fast.
+Only click is imported here; the coding modules load inside the commands.
 """
 
 from __future__ import annotations
 
-import importlib
-import sys
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
 from pathlib import Path
 
 import click
 
-from .errors import TextkitError
-
-#: Commands kept in their own modules, loaded when first needed.
-_LAZY_COMMANDS = {
-    "prevalence": "textkit.cli_stats:prevalence_command",
-    "keyness": "textkit.cli_keyness:keyness_command",
-    "suggest": "textkit.cli_keyness:suggest_command",
-}
+from .main import steps
 
 
-class _Commands(click.Group):
-    """A group that imports the modules of some commands only when they are used."""
-
-    def list_commands(self, ctx: click.Context) -> list[str]:
-        return sorted(set(super().list_commands(ctx)) | set(_LAZY_COMMANDS))
-
-    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
-        command = super().get_command(ctx, name)
-        if command is not None or name not in _LAZY_COMMANDS:
-            return command
-        module, attribute = _LAZY_COMMANDS[name].split(":")
-        return getattr(importlib.import_module(module), attribute)
-
-
-@contextmanager
-def steps(total: int, quiet: bool) -> Iterator[Callable[[str], None]]:
-    """A progress bar over named steps (on stderr; nothing when ``quiet``)."""
-    if quiet:
-        yield lambda name: None
-        return
-    from tqdm import tqdm
-
-    bar = tqdm(total=total, file=sys.stderr, leave=False, bar_format="{desc:<22} {bar} {n}/{total}")
-    started = False
-
-    def advance(name: str) -> None:
-        nonlocal started
-        if started:
-            bar.update(1)
-        started = True
-        bar.set_description_str(name)
-
-    try:
-        yield advance
-        bar.update(bar.total - bar.n)
-    finally:
-        bar.close()
-
-
-@click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(package_name="textkit")
-def cli() -> None:
-    """Code, count and compare the free-text answers of visitor surveys.
-
-    Start with `textkit code SURVEY.yaml --out DIR` to code every answer with the
-    survey's theme lexicon, then estimate prevalence and keyness from the result.
-    """
-
-
-@cli.command("code")
+@click.command("code")
 @click.argument("config", type=click.Path(path_type=Path))
 @click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
               help="Folder for coded.csv, coded.parquet, evidence.csv, coverage.csv, manifest.json.")
@@ -84,7 +21,7 @@ def cli() -> None:
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
 def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: bool) -> None:
     """Code every answer of the survey described by CONFIG with its theme lexicon."""
-    from .pipeline import code_survey, write_coded
+    from ..pipeline import code_survey, write_coded
 
     with steps(6, quiet) as progress:
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
@@ -109,7 +46,7 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: 
                "sample before reporting.")
 
 
-@cli.group("lexicon")
+@click.group("lexicon")
 def lexicon_group() -> None:
     """Check and inspect theme lexicons."""
 
@@ -121,8 +58,9 @@ def lexicon_group() -> None:
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> None:
     """Validate LEXICON and print its lint report."""
-    from .errors import LexiconError
-    from .lexicon import format_lint, lint_lexicon, load_lexicon
+    from ..coding.lexicon import load_lexicon
+    from ..coding.lint import format_lint, lint_lexicon
+    from ..errors import LexiconError
 
     try:
         lex = load_lexicon(lexicon)
@@ -134,7 +72,7 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
         raise
     term_hits = theme_hits = None
     if config is not None:
-        from .pipeline import code_survey
+        from ..pipeline import code_survey
 
         with steps(5, quiet) as progress:
             survey = code_survey(config, lexicon=lex, progress=progress)
@@ -145,7 +83,7 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
     click.echo(format_lint(lint_lexicon(lex, term_hits=term_hits, theme_hits=theme_hits)))
 
 
-@cli.command("agreement")
+@click.command("agreement")
 @click.argument("hand_coded", type=click.Path(path_type=Path))
 @click.option("--lexicon", "lexicon_path", required=True, type=click.Path(path_type=Path),
               help="The lexicon to check.")
@@ -158,11 +96,11 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
 def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_column: str,
                       codes_column: str, quiet: bool) -> None:
     """Compare the lexicon's codes with HAND_CODED answers (precision, recall, F1, kappa)."""
-    from .agreement import compare_with_hand_codes
-    from .errors import InputError
-    from .lexicon import load_lexicon
-    from .output import csv_writer, file_sha256, write_outputs
-    from .readers import read_table
+    from ..coding.agreement import compare_with_hand_codes
+    from ..coding.lexicon import load_lexicon
+    from ..errors import InputError
+    from ..io.output import csv_writer, file_sha256, write_outputs
+    from ..io.readers import read_table
 
     lexicon = load_lexicon(lexicon_path)
     frame, notes = read_table(hand_coded)
@@ -186,29 +124,3 @@ def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_
     for row in weak.itertuples():
         click.echo(f"  weak: {row.theme} (hand {row.hand}, machine {row.machine}, F1 {row.f1:.2f})")
     click.echo(f"wrote agreement.csv and disagreements.csv ({len(disagreements)} answers differ) to {out_dir}")
-
-
-def main(argv: list[str] | None = None) -> int:
-    """Entry point of the ``textkit`` console script."""
-    try:
-        cli.main(args=argv, prog_name="textkit", standalone_mode=False)
-    except TextkitError as error:
-        click.echo(f"textkit: error: {error}", err=True)
-        return 2
-    except OSError as error:  # a disk full or a folder we may not write: still one line
-        where = f"{error.filename}: " if error.filename else ""
-        click.echo(f"textkit: error: {where}{error.strerror or error}", err=True)
-        return 2
-    except click.exceptions.Abort:
-        click.echo("textkit: aborted", err=True)
-        return 130
-    except click.ClickException as error:
-        error.show()
-        return 2
-    except click.exceptions.Exit as exit_request:
-        return exit_request.exit_code
-    return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())

@@ -16,7 +16,7 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from .errors import InputError
+from ..errors import InputError
 
 #: A writer takes the temporary path it must write to.
 Writer = Callable[[Path], None]

@@ -42,9 +42,9 @@ import pandas as pd
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 
-from .errors import InputError
+from ..errors import InputError
+from ..text.tokens import TokenStream, snowball_stemmer, tokenize_corpus
 from .lexicon import Lexicon
-from .text import TokenStream, snowball_stemmer, tokenize_corpus
 
 _MAX_CODEPOINT = "\U0010ffff"
 #: Snowball English special words whose stem is not (nearly) a prefix of them: stem -> word.

@@ -38,7 +38,7 @@ from typing import Any
 
 import yaml
 
-from .errors import InputError
+from ..errors import InputError
 
 #: Survey file suffix (lower case) -> reader family.
 SURVEY_FORMATS: dict[str, str] = {

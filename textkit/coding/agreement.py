@@ -17,7 +17,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
+from ..errors import InputError
 from .lexicon import Lexicon
 
 #: Columns of the agreement table.
@@ -120,7 +120,7 @@ def compare_with_hand_codes(texts: Sequence[str | None], hand_codes: Sequence[st
         One row per answer where the two differ: ``row``, ``text``, ``hand``,
         ``machine``, ``missed`` (hand only), ``extra`` (machine only).
     """
-    from .coding import ThemeCoder
+    from .coder import ThemeCoder
 
     extra_ids = sorted({code.strip() for value in hand_codes if isinstance(value, str)
                         for code in value.split(";") if code.strip() and code.strip() not in lexicon.ids})

@@ -48,7 +48,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import DesignError
+from ..errors import DesignError
 
 #: Accepted values of ``single_psu``.
 SINGLE_PSU_POLICIES: tuple[str, ...] = ("error", "centre", "collapse")

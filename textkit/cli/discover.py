@@ -14,8 +14,8 @@ _NOT_GROUPS = {"question", "answered", "n_themes", "uncoded"}
 
 
 def _load(config: Path, quiet: bool, total: int):
-    from .cli import steps
-    from .pipeline import code_survey
+    from ..pipeline import code_survey
+    from .main import steps
 
     with steps(total, quiet) as progress:
         survey = code_survey(config, progress=progress)
@@ -24,7 +24,7 @@ def _load(config: Path, quiet: bool, total: int):
 
 
 def _questions(survey, requested: tuple[str, ...]) -> list[str]:
-    from .errors import AnalysisError
+    from ..errors import AnalysisError
 
     known = list(survey.roles["questions"])
     for question in requested:
@@ -41,7 +41,7 @@ def _weights(survey, unweighted: bool):
 
 
 def _group_variables(survey, requested: tuple[str, ...]) -> tuple[list[str], str | None]:
-    from .errors import AnalysisError
+    from ..errors import AnalysisError
 
     roles = survey.roles
     wave = roles.get("wave")
@@ -59,7 +59,7 @@ def _group_variables(survey, requested: tuple[str, ...]) -> tuple[list[str], str
 
 
 def _pairs(survey, by: list[str], pairs: tuple[tuple[str, str], ...]) -> list[tuple[str, str, str]]:
-    from .errors import AnalysisError
+    from ..errors import AnalysisError
 
     resolved = []
     for group, reference in pairs:
@@ -108,9 +108,9 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
     import numpy as np
     import pandas as pd
 
-    from .keyness import KEYNESS_COLUMNS, compare
-    from .ngrams import document_term_matrix
-    from .output import csv_writer, write_outputs
+    from ..discover.keyness import KEYNESS_COLUMNS, compare
+    from ..io.output import csv_writer, write_outputs
+    from ..text.ngrams import document_term_matrix
 
     survey = _load(config, quiet, 6)
     coded = survey.coded
@@ -187,10 +187,10 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
     import numpy as np
     import scipy.sparse as sp
 
-    from .coding import ThemeCoder
-    from .keyness import render_suggestions_yaml, suggest_terms
-    from .ngrams import document_term_matrix
-    from .output import csv_writer, text_writer, write_outputs
+    from ..coding.coder import ThemeCoder
+    from ..discover.suggest import render_suggestions_yaml, suggest_terms
+    from ..io.output import csv_writer, text_writer, write_outputs
+    from ..text.ngrams import document_term_matrix
 
     survey = _load(config, quiet, 6)
     coded = survey.coded
