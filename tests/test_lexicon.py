@@ -76,7 +76,7 @@ def test_valid_lexicon_fields():
     assert lexicon.source == "test.yaml"
     cost = lexicon.theme("cost_value")
     assert (cost.label, cost.about, cost.parent, cost.negated, cost.line) == (
-        "Cost and value", "Prices.", None, "drop", 8)
+        "Cost and value", "Prices.", None, "keep", 8)  # keep is the default
     # de-duplicated by words, first occurrence kept, file order kept
     assert [term.words for term in cost.terms] == [("expensive",), ("rip", "off"), ("expens*",), ("price",)]
     assert [term.line for term in cost.terms] == [12, 13, 14, 15]
@@ -95,7 +95,8 @@ def test_defaults_and_terms_as_written():
                     "    terms: [yes, 3.50, 24/7, null word]\n")
     assert (lexicon.version, lexicon.language, lexicon.negation_window) == ("", "en", 4)
     theme = lexicon.themes[0]
-    assert theme.label == "yes" and theme.negated == "drop"
+    assert theme.label == "yes" and theme.negated == "keep"
+    assert lexicon.keep_accents is False and lexicon.nothing_to_report is None
     assert [term.text for term in theme.terms] == ["yes", "3.50", "24/7", "null word"]
     assert [term.words for term in theme.terms] == [("yes",), ("3.50",), ("24", "7"), ("null", "word")]
     assert all(term.inflect for term in theme.terms)
@@ -177,8 +178,10 @@ THEME = "lexicon: x\nthemes:\n  - id: a\n    label: A\n"
      "theme id 'a' is used twice (first at line 3)"),
     (THEME + "    parent: facilitis\n    terms: [b]\n  - {id: facilities, label: F, terms: [c]}\n", 5,
      "parent 'facilitis' of theme 'a' is not a theme id in this lexicon (did you mean 'facilities'?)"),
-    (THEME + "    terms: [b]\n    negated: sometimes\n", 6, "must be 'drop'"),
-    (THEME + "    terms: [b]\n    inflect: maybe\n", 6, "must be true or false"),
+    (THEME + "    terms: [b]\n    negated: some times\n", 6, "must be 'keep'"),
+    (THEME + "    terms: [b]\n    negated: elsewhere\n", 6, "not another theme"),
+    (THEME + "    terms: [b]\n    negated: a\n", 6, "not another theme"),
+    (THEME + "    terms: [b]\n    inflect: maybe\n", 6, "must be true, false or stem"),
     (THEME, 3, "theme 'a' has no 'terms'"),
     (THEME + "    terms: []\n", 5, "'terms' of theme 'a' is empty"),
     (THEME + "    terms:\n", 5, "'terms' of theme 'a' is empty"),
@@ -189,7 +192,7 @@ THEME = "lexicon: x\nthemes:\n  - id: a\n    label: A\n"
     (THEME + "    terms:\n      - b\n      - [c, d]\n", 7, "must be text, found a list"),
     (THEME + "    terms:\n      - b\n      - {term: [c]}\n", 7, "must be text"),
     (THEME + "    terms:\n      - b\n      - {inflect: false}\n", 7, "needs 'term: ...'"),
-    (THEME + "    terms:\n      - b\n      - {term: c, inflect: 0}\n", 7, "must be true or false"),
+    (THEME + "    terms:\n      - b\n      - {term: c, inflect: 0}\n", 7, "must be true, false or stem"),
     (THEME + "    terms:\n      - b\n      - {term: c, stem: no}\n", 7, "unknown key 'stem'"),
     (THEME + "    terms:\n      - b\n      - '*pens'\n", 7, "term '*pens' in 'terms' of theme 'a'"),
     (THEME + "    terms:\n      - b\n      - ex*ns\n", 7, "only end a word"),
@@ -207,7 +210,11 @@ THEME = "lexicon: x\nthemes:\n  - id: a\n    label: A\n"
     ("lexicon: x\nsettings:\n  negation_window: true\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 3,
      "whole number"),
     ("lexicon: x\nsettings:\n  inflect: 1\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 3,
-     "true or false"),
+     "true, false or stem"),
+    ("lexicon: x\nsettings:\n  accents: strip\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 3,
+     "'accents' in 'settings' must be 'fold'"),
+    ("lexicon: x\nlanguage: xx\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 2,
+     "unsupported 'language' 'xx'; supported: ar, ast, bg"),
     ("lexicon: x\nsettings:\n  window: 3\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 3,
      "valid keys: negation_window, inflect"),
     ("lexicon: x\nsettings: [4]\nthemes:\n  - {id: a, label: A, terms: [b]}\n", 2,
@@ -381,6 +388,7 @@ themes:
     terms: [toilets]
   - id: cleanliness
     label: Cleanliness
+    negated: drop
     terms: [clean*, not clean]
     exclude:
       - rude
@@ -440,16 +448,16 @@ def test_lint_clean_lexicon():
 
 # Copied from .helpers/THEMES.md (the fixed starter theme list): id -> (parent, negated).
 THEMES_MD = {
-    "cost_value": (None, "drop"), "crowding": (None, "drop"), "queues": (None, "drop"),
-    "cleanliness": (None, "drop"), "facilities": (None, "keep"), "toilets": ("facilities", "keep"),
-    "connectivity": ("facilities", "keep"), "staff": (None, "drop"),
-    "information_signage": (None, "keep"), "weather": (None, "drop"), "transport": (None, "keep"),
-    "parking": ("transport", "keep"), "accommodation": (None, "drop"), "food_drink": (None, "keep"),
-    "accessibility": (None, "keep"), "safety": (None, "drop"), "noise": (None, "drop"),
+    "cost_value": (None, "keep"), "crowding": (None, "keep"), "queues": (None, "keep"),
+    "cleanliness": (None, "keep"), "facilities": (None, "keep"), "toilets": ("facilities", "keep"),
+    "connectivity": ("facilities", "keep"), "staff": (None, "keep"),
+    "information_signage": (None, "keep"), "weather": (None, "keep"), "transport": (None, "keep"),
+    "parking": ("transport", "keep"), "accommodation": (None, "keep"), "food_drink": (None, "keep"),
+    "accessibility": (None, "keep"), "safety": (None, "keep"), "noise": (None, "keep"),
     "nature_wildlife": (None, "keep"), "booking_tickets": (None, "keep"),
     "opening_hours": (None, "keep"), "shopping": (None, "keep"), "guides_tours": (None, "keep"),
     "language": (None, "keep"), "children_families": (None, "keep"),
-    "activities_events": (None, "keep"), "maintenance": (None, "drop"),
+    "activities_events": (None, "keep"), "maintenance": (None, "keep"),
     "sustainability": (None, "keep"), "payment": (None, "keep"), "history_culture": (None, "keep"),
 }
 THEMES_MD_LABELS = {

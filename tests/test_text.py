@@ -71,7 +71,9 @@ def test_normalise_quotes_dashes_spaces_and_controls():
     assert normalise("a\u2013b") == "a,b"  # en dash
     assert normalise("wi\u2011fi \u2212 x") == "wi-fi - x"  # non-breaking hyphen, minus sign
     assert normalise("a\u00a0b\u2009c\u3000d\u200be\ufeff") == "a b c d e "
-    assert normalise("a\tb\nc\x00d\x07e\x1ef\x7fg") == "a b c d e f g"
+    # tab and line breaks stay: they are clause breaks; other controls become spaces
+    assert normalise("a\tb\nc\x00d\x07e\x1ef\x7fg") == "a\tb\nc d e f g"
+    assert normalise("a\u2028b\u2029c\u0085d") == "a\nb\nc\nd"
     assert normalise("ASCII Only 3.50") == "ascii only 3.50"
     assert normalise("ex\u00adpen\u2060sive") == "expensive"  # invisible soft hyphen, word joiner
 

@@ -43,12 +43,14 @@ import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 
 from ..errors import InputError
-from ..text.tokens import TokenStream, snowball_stemmer, tokenize_corpus
+from ..text.inflect import fold, key_function
+from ..text.tokens import TokenStream, tokenize_corpus
 from .lexicon import Lexicon
+from .nothing import builtin_phrases, nothing_to_report_mask
 
 _MAX_CODEPOINT = "\U0010ffff"
-#: Snowball English special words whose stem is not (nearly) a prefix of them: stem -> word.
-_IRREGULAR_STEMS = {"die": "dying", "lie": "lying", "tie": "tying"}
+#: Columns of ``CodingResult.evidence``.
+EVIDENCE_FIELDS = ["document", "theme", "term", "start", "end", "negated", "matched_text"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -66,17 +68,24 @@ class CodingResult:
     direct : csr_matrix of shape (n_documents, n_themes), int32
         Matches of each theme's own terms, before the roll-up to parents.
     evidence : DataFrame
-        One row per counted match: ``document`` (row number), ``theme`` (the
-        theme whose term matched; ancestors inherit it), ``term`` (as written
-        in the lexicon), ``start``, ``end`` (character span in the original
-        text) and ``matched_text``.
+        One row per counted match (:data:`EVIDENCE_FIELDS`): ``document`` (row
+        number), ``theme`` (the theme the match counts for; ancestors inherit
+        it), ``term`` (the lexicon term that matched, as written), ``start``,
+        ``end`` (character span in the original text), ``negated`` (the match
+        lies in a negation scope) and ``matched_text``.
     term_hits : Series
         Counted matches per (theme, term), every lexicon term listed (zeros
         included) - the input of the lexicon lint.
     dropped : dict
-        Matches not counted: ``negated``, ``excluded``, ``contained``.
+        Matches not counted: ``negated`` (themes with ``negated: drop``),
+        ``excluded``, ``contained``, ``nothing_to_report``.
     stream : TokenStream
         The tokenised documents.
+    negated : csr_matrix of shape (n_documents, n_themes), int32
+        Counted matches that are negated, rolled up like ``hits``.
+    nothing_to_report : ndarray of shape (n_documents,), bool
+        Documents that say there is nothing to report (see
+        :mod:`textkit.coding.nothing`); they raise no theme.
     """
 
     themes: tuple[str, ...]
@@ -87,13 +96,15 @@ class CodingResult:
     term_hits: pd.Series
     dropped: dict[str, int]
     stream: TokenStream
+    negated: sp.csr_matrix | None = None
+    nothing_to_report: np.ndarray | None = None
 
 
 @dataclass(frozen=True, eq=False)
 class _CompiledLexicon:
     """Lexicon flattened into arrays (terms then exclusions)."""
 
-    patterns: tuple[tuple[str, bool, bool], ...]  # (word, is_prefix, inflect)
+    patterns: tuple[tuple[str, bool, bool | str], ...]  # (word, is_prefix, inflect mode)
     term_patterns: np.ndarray  # (n_terms, max_words) pattern ids, -1 padded
     term_lengths: np.ndarray  # (n_terms,)
     term_theme: np.ndarray  # (n_terms,) theme index
@@ -101,6 +112,7 @@ class _CompiledLexicon:
     term_text: tuple[str, ...]
     term_source: np.ndarray  # (n_terms,) index of the lexicon term a spelling row comes from
     theme_drops_negated: np.ndarray  # (n_themes,) bool
+    theme_negated_target: np.ndarray  # (n_themes,) theme a negated match counts for (itself by default)
     rollup: sp.csr_matrix  # (n_themes, n_themes)
 
 
@@ -135,7 +147,7 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
                     ids = []
                     for word in words:
                         prefix = word.endswith("*")
-                        key = (word.rstrip("*"), prefix, bool(term.inflect) and not prefix)
+                        key = (word.rstrip("*"), prefix, False if prefix else term.inflect)
                         ids.append(pattern_ids.setdefault(key, len(pattern_ids)))
                     rows.append(ids)
                     themes.append(theme_index)
@@ -156,6 +168,8 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
         term_text=tuple(texts),
         term_source=np.array(sources, dtype=np.int64),
         theme_drops_negated=np.array([t.negated == "drop" for t in lexicon.themes], dtype=bool),
+        theme_negated_target=np.array([lexicon.ids.index(t.negated) if t.negated in lexicon.ids else i
+                                       for i, t in enumerate(lexicon.themes)], dtype=np.int64),
         rollup=sp.csr_matrix(lexicon.rollup_matrix(), dtype=np.int32),
     )
 
@@ -166,73 +180,80 @@ def _prefix_ranges(vocab: np.ndarray, prefixes: np.ndarray) -> tuple[np.ndarray,
             np.searchsorted(vocab, np.char.add(prefixes, _MAX_CODEPOINT), side="left"))
 
 
-def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray, stem_cache: dict[str, str],
-                      language: str) -> sp.csr_matrix:
-    """Sparse (n_vocabulary, n_patterns) bool: vocabulary word v matches pattern p.
+def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
+                      key_cache: dict[bool | str, dict[str, tuple[str, ...]]], language: str,
+                      keep_accents: bool) -> sp.csr_matrix:
+    """Sparse (n_vocabulary, n_patterns) int8: 2 where vocabulary word v is pattern p as written
+    (case and accents folded), 1 where it matches otherwise (prefix, inflection), else 0.
 
-    Inflection-insensitive patterns compare Snowball stems; for a language
-    without a Snowball stemmer they match the exact word only.
+    Inflecting patterns compare the keys of :func:`textkit.text.inflect.key_function`
+    (lemmas, or Snowball stems for ``inflect: stem``), computed once per
+    vocabulary word and kept in ``key_cache`` across calls.
     """
-    vocab = vocabulary.astype(str) if len(vocabulary) else np.zeros(0, dtype="<U1")
+    vocab_list = vocabulary.tolist()
+    folded = np.array([fold(token, keep_accents) for token in vocab_list] or [""], dtype=str)[:len(vocab_list)]
+    order = np.argsort(folded, kind="stable")
+    sorted_folded = folded[order]
     vocab_rows: list[np.ndarray] = []
     pattern_cols: list[np.ndarray] = []
-    inflect_words: list[tuple[int, str]] = []
-    words = np.array([p[0] for p in compiled.patterns], dtype=str)
+    values: list[np.ndarray] = []
+    words = np.array([fold(p[0], keep_accents) for p in compiled.patterns] or [""], dtype=str)
+    words = words[:len(compiled.patterns)]
     is_prefix = np.array([p[1] for p in compiled.patterns], dtype=bool)
-    lows, prefix_highs = _prefix_ranges(vocab, words)
-    highs = np.where(is_prefix, prefix_highs, np.searchsorted(vocab, words, side="right"))
-    for pattern_id, (word, _prefix, inflect) in enumerate(compiled.patterns):
+    lows, prefix_highs = _prefix_ranges(sorted_folded, words)
+    highs = np.where(is_prefix, prefix_highs, np.searchsorted(sorted_folded, words, side="right"))
+    for pattern_id in range(len(compiled.patterns)):
         low, high = lows[pattern_id], highs[pattern_id]
         if high > low:
-            vocab_rows.append(np.arange(low, high))
+            vocab_rows.append(order[low:high])
             pattern_cols.append(np.full(high - low, pattern_id))
-        if inflect:
-            inflect_words.append((pattern_id, word))
-    stem = snowball_stemmer(language) if inflect_words else None
-    if stem is not None:
-        stems_wanted: dict[str, list[int]] = {}
-        for pattern_id, word in inflect_words:
-            if word not in stem_cache:
-                stem_cache[word] = stem(word)
-            stems_wanted.setdefault(stem_cache[word], []).append(pattern_id)
-        # A Snowball stem is, but for its last letter (happy -> happi, fly -> fli), a
-        # prefix of the word: only vocabulary words starting with that head can share
-        # it. Snowball's few irregular forms (dying -> die) are added by hand.
-        heads = sorted({s[: max(2, len(s) - 1)] for s in stems_wanted}
-                       | {_IRREGULAR_STEMS[s] for s in stems_wanted if s in _IRREGULAR_STEMS})
-        head_array = np.array(heads, dtype=str)
-        head_lows, head_highs = _prefix_ranges(vocab, head_array)
-        candidates = np.unique(np.concatenate(
-            [np.arange(low, high) for low, high in zip(head_lows, head_highs, strict=True)]
-        )) if heads else np.zeros(0, dtype=np.int64)
-        for index in candidates:
-            token = vocab[index]
-            if token not in stem_cache:
-                stem_cache[token] = stem(token)
-            shared = stems_wanted.get(stem_cache[token], ())
-            vocab_rows.append(np.full(len(shared), index))
-            pattern_cols.append(np.asarray(shared, dtype=np.int64))
+            values.append(np.full(high - low, 1 if is_prefix[pattern_id] else 2, dtype=np.int8))
+    for mode in sorted({p[2] for p in compiled.patterns if p[2]}, key=str):
+        key = key_function(mode, language, keep_accents)
+        cache = key_cache.setdefault(mode, {})
+        wanted: dict[str, list[int]] = {}
+        for pattern_id, (word, _prefix, inflect) in enumerate(compiled.patterns):
+            if inflect == mode:
+                for word_key in key(word):
+                    wanted.setdefault(word_key, []).append(pattern_id)
+        for index, token in enumerate(vocab_list):
+            keys = cache.get(token)
+            if keys is None:
+                keys = cache[token] = key(token)
+            for word_key in keys:
+                shared = wanted.get(word_key)
+                if shared:
+                    vocab_rows.append(np.full(len(shared), index))
+                    pattern_cols.append(np.asarray(shared, dtype=np.int64))
+                    values.append(np.ones(len(shared), dtype=np.int8))
     if vocab_rows:
-        rows = np.concatenate(vocab_rows)
-        cols = np.concatenate(pattern_cols)
+        rows, cols, data = np.concatenate(vocab_rows), np.concatenate(pattern_cols), np.concatenate(values)
     else:
         rows = cols = np.zeros(0, dtype=np.int64)
-    matrix = sp.csr_matrix((np.ones(len(rows), dtype=bool), (rows, cols)),
-                           shape=(len(vocabulary), len(compiled.patterns)), dtype=bool)
+        data = np.zeros(0, dtype=np.int8)
+    matrix = sp.csr_matrix((data.astype(np.int32), (rows, cols)),
+                           shape=(len(vocabulary), len(compiled.patterns)))
     matrix.sum_duplicates()
+    matrix.data = np.where(matrix.data >= 2, 2, 1).astype(np.int8)
     return matrix
 
 
-def _match_terms(stream: TokenStream, compiled: _CompiledLexicon,
-                 pattern_matrix: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
-    """All term matches: (start token position, term id), each shape (n_matches,)."""
+def _match_terms(stream: TokenStream, compiled: _CompiledLexicon, pattern_matrix: sp.csr_matrix
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """All term matches: (start token position, term id, words matched as written), each (n_matches,).
+
+    Sorted by start, then by words matched as written (most first), then term id.
+    """
     n_patterns = max(len(compiled.patterns), 1)
     useful = np.diff(pattern_matrix.indptr) > 0
     positions = np.flatnonzero(useful[stream.codes])
     occurrences = pattern_matrix[stream.codes[positions]].tocoo()
     occurrence_position = positions[occurrences.row]
     occurrence_pattern = occurrences.col.astype(np.int64)
-    keys = np.sort(occurrence_position * n_patterns + occurrence_pattern)
+    occurrence_exact = (occurrences.data == 2).astype(np.int64)
+    keys = occurrence_position * n_patterns + occurrence_pattern
+    key_order = np.argsort(keys, kind="stable")
+    keys, key_exact = keys[key_order], occurrence_exact[key_order]
 
     n_terms = len(compiled.term_lengths)
     first = sp.csr_matrix((np.ones(n_terms, dtype=np.int8),
@@ -241,22 +262,23 @@ def _match_terms(stream: TokenStream, compiled: _CompiledLexicon,
     candidates = first[occurrence_pattern].tocoo()
     start = occurrence_position[candidates.row]
     term = candidates.col.astype(np.int64)
+    exact = occurrence_exact[candidates.row]
     length = compiled.term_lengths[term]
     if len(start) and length.max() > 1:
         document = np.searchsorted(stream.doc_offsets, start, side="right") - 1
         fits = start + length <= stream.doc_offsets[document + 1]
-        start, term, length = start[fits], term[fits], length[fits]
+        start, term, length, exact = start[fits], term[fits], length[fits], exact[fits]
         for k in range(1, compiled.term_patterns.shape[1]):
-            longer = length > k
+            longer = np.flatnonzero(length > k)
             wanted = (start[longer] + k) * n_patterns + compiled.term_patterns[term[longer], k]
-            found = np.searchsorted(keys, wanted)
-            found = np.minimum(found, len(keys) - 1)
+            found = np.minimum(np.searchsorted(keys, wanted), len(keys) - 1)
             present = keys[found] == wanted if len(keys) else np.zeros(len(wanted), bool)
+            exact[longer[present]] += key_exact[found[present]]
             keep = np.ones(len(start), dtype=bool)
-            keep[np.flatnonzero(longer)[~present]] = False
-            start, term, length = start[keep], term[keep], length[keep]
-    order = np.lexsort((term, start))
-    return start[order], term[order]
+            keep[longer[~present]] = False
+            start, term, length, exact = start[keep], term[keep], length[keep], exact[keep]
+    order = np.lexsort((term, -exact, start))
+    return start[order], term[order], exact[order]
 
 
 def _covers(key_theme: np.ndarray, key_start: np.ndarray, key_length: np.ndarray, n_tokens: int,
@@ -356,11 +378,11 @@ class ThemeCoder(BaseEstimator):
         _check_not_one_string(documents)
         stream = documents if isinstance(documents, TokenStream) else tokenize_corpus(documents, offsets=False)
         self._compiled = _compile(self.lexicon)
-        self._stem_cache: dict[str, str] = {}
-        pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._stem_cache,
-                                           self.lexicon.language)
+        self._key_cache: dict[bool | str, dict[str, tuple[str, ...]]] = {}
+        pattern_matrix = _resolve_patterns(self._compiled, stream.vocabulary, self._key_cache,
+                                           self.lexicon.language, self.lexicon.keep_accents)
         self._fitted_patterns = pattern_matrix
-        per_pattern = np.asarray(pattern_matrix.sum(axis=0)).ravel()
+        per_pattern = np.asarray((pattern_matrix > 0).sum(axis=0)).ravel()
         compiled = self._compiled
         matches = [int(per_pattern[ids[ids >= 0]].sum()) for ids in compiled.term_patterns]
         table = pd.DataFrame({
@@ -420,41 +442,75 @@ class ThemeCoder(BaseEstimator):
             texts = list(documents)
             stream = tokenize_corpus(texts, offsets=evidence)
         compiled = self._compiled
-        n_themes = len(self.lexicon.themes)
         if stream.vocabulary is self.vocabulary_:  # coding the fitted documents themselves
             pattern_matrix = self._fitted_patterns
         else:
-            pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._stem_cache,
-                                               self.lexicon.language)
-        start, term = _match_terms(stream, compiled, pattern_matrix)
-        theme = compiled.term_theme[term]
-        length = compiled.term_lengths[term]
-        is_exclusion = compiled.term_is_exclusion[term]
-
-        ex_theme, ex_start, ex_length = theme[is_exclusion], start[is_exclusion], length[is_exclusion]
-        start, term, theme, length = (a[~is_exclusion] for a in (start, term, theme, length))
-        n = stream.n_tokens
-        window = self.negation_window if self.negation_window is not None else self.lexicon.negation_window
-        negated = stream.negated_at(start, window) & compiled.theme_drops_negated[theme]
-        excluded = _covers(ex_theme, ex_start, ex_length, n, theme, start, length) & ~negated
-        contained = np.zeros(len(start), dtype=bool)
-        alive = ~(negated | excluded)
-        if alive.any():
-            contained[alive] = _contained(theme[alive], start[alive], length[alive], n)
-        keep = alive & ~contained
-        dropped = {"negated": int(negated.sum()), "excluded": int(excluded.sum()),
-                   "contained": int(contained.sum())}
-        start, term, theme, length = (a[keep] for a in (start, term, theme, length))
-
+            pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._key_cache,
+                                               self.lexicon.language, self.lexicon.keep_accents)
+        matches, dropped = self._counted_matches(stream, pattern_matrix)
+        start, term, theme, length, negated = matches
         document = (np.searchsorted(stream.doc_offsets, start, side="right") - 1).astype(np.int64)
-        direct = sp.csr_matrix((np.ones(len(start), dtype=np.int32), (document, theme)),
-                               shape=(stream.n_documents, n_themes))
+        shape = (stream.n_documents, len(self.lexicon.themes))
+        direct = sp.csr_matrix((np.ones(len(start), dtype=np.int32), (document, theme)), shape=shape)
         direct.sum_duplicates()
         hits = (direct @ compiled.rollup).tocsr()
         matrix = hits.copy()
         matrix.data = (matrix.data > 0).astype(np.int8)
         matrix.eliminate_zeros()
+        negated_hits = sp.csr_matrix((np.ones(int(negated.sum()), dtype=np.int32),
+                                      (document[negated], theme[negated])), shape=shape)
+        negated_hits.sum_duplicates()
+        table = self._evidence(stream, texts, document, theme, term, start, length, negated) if evidence \
+            else pd.DataFrame(columns=EVIDENCE_FIELDS)
+        return CodingResult(themes=tuple(self.lexicon.ids), matrix=matrix, hits=hits.astype(np.int32),
+                            direct=direct, evidence=table, term_hits=self._term_hits(term),
+                            dropped=dropped, stream=stream,
+                            negated=(negated_hits @ compiled.rollup).tocsr().astype(np.int32),
+                            nothing_to_report=self._nothing_to_report(stream))
 
+    def _nothing_to_report(self, stream: TokenStream) -> np.ndarray:
+        phrases, fillers = builtin_phrases(self.lexicon.language)
+        if self.lexicon.nothing_to_report is not None:
+            phrases = self.lexicon.nothing_to_report
+        return nothing_to_report_mask(stream, phrases, fillers)
+
+    def _counted_matches(self, stream: TokenStream, pattern_matrix: sp.csr_matrix):
+        """Matches that count: ``(start, term, theme, length, negated)`` arrays and the dropped counts.
+
+        Exclusions veto overlapping matches of their theme; negated matches are
+        dropped (``negated: drop``), kept and marked, or moved to another theme;
+        matches in "nothing to report" answers and matches inside a longer (or
+        more literal, for the same span) match of the same theme do not count.
+        """
+        compiled = self._compiled
+        start, term, exact = _match_terms(stream, compiled, pattern_matrix)
+        theme = compiled.term_theme[term]
+        length = compiled.term_lengths[term]
+        is_exclusion = compiled.term_is_exclusion[term]
+        ex_theme, ex_start, ex_length = theme[is_exclusion], start[is_exclusion], length[is_exclusion]
+        start, term, theme, length = (a[~is_exclusion] for a in (start, term, theme, length))
+        n = stream.n_tokens
+        window = self.negation_window if self.negation_window is not None else self.lexicon.negation_window
+        in_scope = stream.negated_at(start, window)
+        negated = in_scope & compiled.theme_drops_negated[theme]
+        excluded = _covers(ex_theme, ex_start, ex_length, n, theme, start, length) & ~negated
+        theme = np.where(in_scope, compiled.theme_negated_target[theme], theme)  # negated: <theme id>
+        document = np.searchsorted(stream.doc_offsets, start, side="right") - 1
+        nothing = self._nothing_to_report(stream)[document] & ~(negated | excluded)
+        contained = np.zeros(len(start), dtype=bool)
+        alive = ~(negated | excluded | nothing)
+        if alive.any():
+            contained[alive] = _contained(theme[alive], start[alive], length[alive], n)
+        keep = alive & ~contained
+        dropped = {"negated": int(negated.sum()), "excluded": int(excluded.sum()),
+                   "contained": int(contained.sum()), "nothing_to_report": int(nothing.sum())}
+        kept = np.flatnonzero(keep)
+        kept = kept[np.lexsort((term[kept], start[kept]))]  # evidence order: position, then lexicon order
+        return (start[kept], term[kept], theme[kept], length[kept], in_scope[kept]), dropped
+
+    def _term_hits(self, term: np.ndarray) -> pd.Series:
+        """Counted matches per (theme, term) of the lexicon, zeros included."""
+        compiled = self._compiled
         n_sources = int(compiled.term_source.max(initial=-1)) + 1
         term_counts = np.bincount(compiled.term_source[term], minlength=n_sources)
         _, first_row = np.unique(compiled.term_source, return_index=True)
@@ -462,14 +518,10 @@ class ThemeCoder(BaseEstimator):
         index = pd.MultiIndex.from_arrays(
             [[self.lexicon.themes[i].id for i in compiled.term_theme[first_row][mask]],
              np.asarray(compiled.term_text, dtype=object)[first_row][mask]], names=["theme", "term"])
-        term_hits = pd.Series(term_counts[mask], index=index, name="hits")
-        table = self._evidence(stream, texts, document, theme, term, start, length) if evidence \
-            else pd.DataFrame(columns=["document", "theme", "term", "start", "end", "matched_text"])
-        return CodingResult(themes=tuple(self.lexicon.ids), matrix=matrix, hits=hits.astype(np.int32),
-                            direct=direct,
-                            evidence=table, term_hits=term_hits, dropped=dropped, stream=stream)
+        return pd.Series(term_counts[mask], index=index, name="hits")
 
-    def _evidence(self, stream: TokenStream, texts, document, theme, term, start, length) -> pd.DataFrame:
+    def _evidence(self, stream: TokenStream, texts, document, theme, term, start, length,
+                  negated) -> pd.DataFrame:
         if stream.starts is None:
             raise ValueError("evidence needs token offsets: tokenise with offsets=True")
         char_start = stream.starts[start].astype(np.int64)
@@ -486,6 +538,7 @@ class ThemeCoder(BaseEstimator):
             "term": np.asarray(self._compiled.term_text, dtype=object)[term],
             "start": char_start,
             "end": char_end,
+            "negated": negated.astype(bool),
             "matched_text": matched,
         })
         return frame  # matches arrive sorted by token position, so by document and start

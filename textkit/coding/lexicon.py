@@ -9,13 +9,16 @@ is the guide). It lists *themes*; each theme has *terms* that raise it and
     language: en
     settings:
       negation_window: 4     # tokens after a negation cue that are negated (1..10)
-      inflect: true          # default for themes: match inflections of words
+      inflect: true          # default for themes: true (lemmas), false, or stem (Snowball)
+      accents: fold          # fold: cafe = café (default) | keep: accents tell words apart
+    nothing_to_report: [nothing, no complaints]   # optional: replaces the built-in list
     themes:
       - id: cost_value
         label: Cost and value
         about: Prices, fees and value for money.
         parent: null         # id of another theme; a child's hit counts for it too
-        negated: drop        # drop: negated mentions don't count | keep: they do
+        negated: keep        # keep (default): negated mentions count, marked | drop |
+                             # another theme's id: they count for that theme instead
         terms: [expensive, rip off, expens*, value for money]
         exclude: [free parking]
 
@@ -26,7 +29,9 @@ exactly like the answers (case, curly quotes, full-width forms; punctuation
 dropped). A word ending in ``*`` is a prefix wildcard: at least
 :data:`MIN_PREFIX` characters before it, ``*`` only at the end of a word, on
 any word of a phrase. A term item is either text or a mapping
-``{term: ..., inflect: false}`` that overrides inflection for that term. The
+``{term: ..., inflect: false}`` that overrides inflection for that term
+(``true``: inflected forms by the lemmatiser, ``false``: as written, ``stem``:
+Snowball stems; see :mod:`textkit.text.inflect`). The
 text of a term is taken as written: YAML's conversions (``yes`` to a boolean,
 ``3.50`` to a number) are not applied to it. Terms (and exclusions) are kept
 de-duplicated by their words within a theme, first occurrence first.
@@ -47,6 +52,7 @@ from typing import TYPE_CHECKING
 import yaml
 
 from ..errors import LexiconError
+from ..text.inflect import ACCENTS_KEPT_BY_DEFAULT, SUPPORTED_LANGUAGES, base_language
 from ..text.tokens import normalise, word_tokens
 
 if TYPE_CHECKING:
@@ -54,8 +60,14 @@ if TYPE_CHECKING:
 
 #: Characters a prefix wildcard needs before its ``*``.
 MIN_PREFIX = 3
-#: Allowed values of a theme's ``negated`` policy.
-NEGATED_POLICIES = ("drop", "keep")
+#: Allowed values of a theme's ``negated`` policy (besides another theme's id: a redirect).
+NEGATED_POLICIES = ("keep", "drop")
+#: A theme's ``negated`` policy when the file gives none.
+DEFAULT_NEGATED = "keep"
+#: Allowed values of ``inflect`` besides true and false.
+INFLECT_STEM = "stem"
+#: Allowed values of ``settings.accents``.
+ACCENT_POLICIES = ("fold", "keep")
 #: Allowed range of ``settings.negation_window`` (inclusive).
 NEGATION_WINDOW_RANGE = (1, 10)
 #: Default ``settings.negation_window`` (the tokeniser's default too).
@@ -68,8 +80,8 @@ LINT_KINDS = ("shared_term", "redundant", "vetoed_term", "unused_term", "no_hits
 _ID = re.compile(r"[a-z][a-z0-9_]*\Z")
 _LANGUAGE = re.compile(r"[a-z]{2,3}(?:[-_][a-z0-9]{2,8})*\Z", re.IGNORECASE)
 _WORD_CHAR = re.compile(r"[^\W_]\Z")
-_TOP_KEYS = ("lexicon", "version", "language", "settings", "themes")
-_SETTINGS_KEYS = ("negation_window", "inflect")
+_TOP_KEYS = ("lexicon", "version", "language", "settings", "nothing_to_report", "themes")
+_SETTINGS_KEYS = ("negation_window", "inflect", "accents")
 _THEME_KEYS = ("id", "label", "about", "parent", "negated", "inflect", "terms", "exclude")
 _TERM_KEYS = ("term", "inflect")
 _NULL_TAG = "tag:yaml.org,2002:null"
@@ -89,15 +101,16 @@ class Term:
     words : tuple of str
         Normalised tokens (:func:`textkit.text.word_tokens`); a word ending in
         ``"*"`` is a prefix wildcard (the prefix is ``word[:-1]``).
-    inflect : bool
-        Whether the non-wildcard words also match their inflections.
+    inflect : bool or "stem"
+        Whether the non-wildcard words also match their inflections: True by
+        their lemmas, ``"stem"`` by Snowball stems, False as written.
     line : int
         1-based line of the term in the lexicon file.
     """
 
     text: str
     words: tuple[str, ...]
-    inflect: bool
+    inflect: bool | str
     line: int
 
     @property
@@ -129,9 +142,11 @@ class Theme:
         Terms that raise the theme, file order, de-duplicated by words.
     exclusions : tuple of Term
         Phrases that veto an overlapping hit of this theme's terms.
-    negated : {"drop", "keep"}
-        Whether negated mentions are dropped (problem themes) or kept
-        (availability themes: "no toilets" is about toilets).
+    negated : str
+        ``"keep"``: negated mentions count (marked ``negated`` in the
+        evidence: "the guide was not friendly" is about staff); ``"drop"``:
+        they do not count; another theme's id: they count for that theme
+        ("not expensive" for a good-value theme).
     line : int
         1-based line where the theme starts.
     """
@@ -159,6 +174,12 @@ class Lexicon:
         In file order; this is the column order of every theme matrix.
     negation_window : int
         Tokens after a negation cue that are negated (default 4).
+    keep_accents : bool
+        Whether accents tell words apart (``settings.accents: keep``); by
+        default they are folded (``cafe`` matches ``café``).
+    nothing_to_report : tuple of str or None
+        The lexicon's own "nothing to report" phrases; None for the built-in
+        list of its language (:mod:`textkit.coding.nothing`).
     source : str
         Path of the file, or ``"<string>"``.
     sha256 : str
@@ -173,6 +194,8 @@ class Lexicon:
     negation_window: int
     source: str
     sha256: str
+    keep_accents: bool = False
+    nothing_to_report: tuple[str, ...] | None = None
     _index: dict[str, int] = field(default_factory=dict, init=False, repr=False, compare=False,
                                    hash=False)
 
@@ -356,6 +379,7 @@ class _Parser:
 
     def __init__(self) -> None:
         self.problems: list[tuple[int | None, str]] = []
+        self.redirect_nodes: dict[str, yaml.Node] = {}  # theme id -> node of its 'negated: <theme>'
 
     def problem(self, line: int | None, message: str) -> None:
         self.problems.append((line, message))
@@ -407,6 +431,15 @@ class _Parser:
         self.problem(_line(node), f"{what} must be true or false, found {_kind(node)}")
         return None
 
+    def inflect(self, node: yaml.Node, what: str) -> bool | str | None:
+        """``inflect``: true, false or "stem"."""
+        if isinstance(node, yaml.ScalarNode) and node.value == INFLECT_STEM and node.tag != _NULL_TAG:
+            return INFLECT_STEM
+        if isinstance(node, yaml.ScalarNode) and node.tag == _BOOL_TAG and node.style is None:
+            return yaml.constructor.SafeConstructor.bool_values[node.value.lower()]
+        self.problem(_line(node), f"{what} must be true, false or stem, found {_kind(node)}")
+        return None
+
     def integer(self, node: yaml.Node, what: str, low: int, high: int) -> int | None:
         if isinstance(node, yaml.ScalarNode) and node.tag == _INT_TAG and node.style is None:
             try:
@@ -426,16 +459,22 @@ class _Parser:
         if top is None:
             return None
         name, version, language = self.header(root, top)
-        window, inflect = DEFAULT_NEGATION_WINDOW, True
+        window, inflect, accents = DEFAULT_NEGATION_WINDOW, True, None
         if "settings" in top:
-            window, inflect = self.settings(top["settings"][1])
+            window, inflect, accents = self.settings(top["settings"][1])
+        keep_accents = accents == "keep" if accents else base_language(language) in ACCENTS_KEPT_BY_DEFAULT
+        nothing = None
+        if "nothing_to_report" in top:
+            nothing = tuple(term.text for term in self.terms(top["nothing_to_report"][1], False,
+                                                             "'nothing_to_report'", need_one=False))
         parent_nodes: dict[str, yaml.Node] = {}
         themes = self.theme_list(root, top, inflect, parent_nodes)
         self.hierarchy(themes, parent_nodes)
         if self.problems or name is None:
             return None
         return Lexicon(name=name, version=version or "", language=language, themes=tuple(themes),
-                       negation_window=window, source=source, sha256=sha256)
+                       negation_window=window, source=source, sha256=sha256, keep_accents=keep_accents,
+                       nothing_to_report=nothing)
 
     def top_level(self, root: yaml.Node | None) -> dict[str, tuple[yaml.Node, yaml.Node]] | None:
         """The top-level mapping's entries, or None (a problem noted) if the root is not a mapping."""
@@ -464,6 +503,9 @@ class _Parser:
             if value is not None and not _LANGUAGE.match(value):
                 self.problem(_line(top["language"][1]),
                              f"'language' must be a language code such as 'en', found '{value}'")
+            elif value is not None and base_language(value) not in SUPPORTED_LANGUAGES:
+                self.problem(_line(top["language"][1]),
+                             f"unsupported 'language' '{value}'; supported: {', '.join(SUPPORTED_LANGUAGES)}")
             language = (value or "en").lower()
         return name, version, language
 
@@ -486,22 +528,30 @@ class _Parser:
                 themes.append(theme)
         return themes
 
-    def settings(self, node: yaml.Node) -> tuple[int, bool]:
-        window, inflect = DEFAULT_NEGATION_WINDOW, True
+    def settings(self, node: yaml.Node) -> tuple[int, bool | str, str | None]:
+        """``(negation_window, inflect, accents)``; accents None when not given."""
+        window, inflect, accents = DEFAULT_NEGATION_WINDOW, True, None
         if not isinstance(node, yaml.MappingNode):
             if not (isinstance(node, yaml.ScalarNode) and node.tag == _NULL_TAG):
                 self.problem(_line(node), f"'settings' must be a mapping with keys "
                                           f"{', '.join(_SETTINGS_KEYS)}; found {_kind(node)}")
-            return window, inflect
+            return window, inflect, accents
         entries = self.mapping(node, _SETTINGS_KEYS, "in 'settings'")
         if "negation_window" in entries:
             value = self.integer(entries["negation_window"][1], "'negation_window'",
                                  *NEGATION_WINDOW_RANGE)
             window = window if value is None else value
         if "inflect" in entries:
-            value = self.boolean(entries["inflect"][1], "'inflect' in 'settings'")
+            value = self.inflect(entries["inflect"][1], "'inflect' in 'settings'")
             inflect = inflect if value is None else value
-        return window, inflect
+        if "accents" in entries:
+            value = self.text(entries["accents"][1], "'accents' in 'settings'", required=True)
+            if value is not None and value not in ACCENT_POLICIES:
+                self.problem(_line(entries["accents"][1]), "'accents' in 'settings' must be 'fold' "
+                             f"(cafe matches café) or 'keep' (accents tell words apart), found '{value}'")
+            elif value is not None:
+                accents = value
+        return window, inflect, accents
 
     # one theme: id, descriptive fields, policies, terms ---------------------------------
 
@@ -521,6 +571,8 @@ class _Parser:
         if parent and theme_id:
             parent_nodes[theme_id] = entries["parent"][1]
         negated, inflect = self.theme_policies(entries, where, default_inflect)
+        if negated not in NEGATED_POLICIES and theme_id:
+            self.redirect_nodes[theme_id] = entries["negated"][1]
         terms: tuple[Term, ...] = ()
         if "terms" not in entries:
             self.missing(node, "terms", f"{where} has no 'terms'; list at least one term")
@@ -568,20 +620,20 @@ class _Parser:
         return label, about, parent
 
     def theme_policies(self, entries: dict[str, tuple[yaml.Node, yaml.Node]], where: str,
-                       default_inflect: bool) -> tuple[str, bool]:
+                       default_inflect: bool | str) -> tuple[str, bool | str]:
         """``(negated, inflect)`` of a theme, defaults where absent or invalid."""
-        negated = "drop"
+        negated = DEFAULT_NEGATED
         if "negated" in entries:
             value = self.text(entries["negated"][1], f"'negated' of {where}", required=True)
-            if value is not None and value not in NEGATED_POLICIES:
+            if value is not None and value not in NEGATED_POLICIES and not _ID.match(value):
                 self.problem(_line(entries["negated"][1]),
-                             f"'negated' of {where} must be 'drop' (negated mentions don't count) or "
-                             f"'keep' (they do), found '{value}'")
+                             f"'negated' of {where} must be 'keep' (negated mentions count), 'drop' "
+                             f"(they don't) or the id of the theme they count for, found '{value}'")
             elif value is not None:
                 negated = value
         inflect = default_inflect
         if "inflect" in entries:
-            value = self.boolean(entries["inflect"][1], f"'inflect' of {where}")
+            value = self.inflect(entries["inflect"][1], f"'inflect' of {where}")
             inflect = inflect if value is None else value
         return negated, inflect
 
@@ -612,7 +664,7 @@ class _Parser:
                 return None
             text_node = entries["term"][1]
             if "inflect" in entries:
-                value = self.boolean(entries["inflect"][1], f"'inflect' of a term in {where}")
+                value = self.inflect(entries["inflect"][1], f"'inflect' of a term in {where}")
                 inflect = inflect if value is None else value
         elif not isinstance(node, yaml.ScalarNode):
             self.problem(_line(node), f"a term in {where} must be text, found {_kind(node)} "
@@ -634,6 +686,12 @@ class _Parser:
 
     def hierarchy(self, themes: list[Theme], parent_nodes: dict[str, yaml.Node]) -> None:
         known = {theme.id for theme in themes}
+        for theme in themes:  # 'negated: <theme id>' must name another theme
+            node = self.redirect_nodes.get(theme.id)
+            if node is not None and (theme.negated not in known or theme.negated == theme.id):
+                self.problem(_line(node), f"'negated' of theme '{theme.id}' names '{theme.negated}', which "
+                             f"is not another theme of this lexicon{_suggest(theme.negated, known - {theme.id})};"
+                             " use keep, drop or another theme's id")
         parents: dict[str, str] = {}
         for theme in themes:
             if theme.parent is None or theme.id not in parent_nodes:

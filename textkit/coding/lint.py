@@ -8,31 +8,39 @@ from functools import lru_cache
 
 import pandas as pd
 
-from ..text.tokens import is_negation_cue, snowball_stemmer
-from .lexicon import LINT_COLUMNS, LINT_KINDS, Lexicon, Term
+from ..text.inflect import fold, key_function
+from ..text.tokens import is_negation_cue
+from .lexicon import INFLECT_STEM, LINT_COLUMNS, LINT_KINDS, Lexicon, Term
 
 
-@lru_cache(maxsize=8)
-def _stemmer(language: str):
-    """Cached Snowball stem function for ``language``, or None (lint then compares words only)."""
-    stem = snowball_stemmer(language)
-    return None if stem is None else lru_cache(maxsize=None)(stem)
+class _Keys:
+    """How lint keys a word, the way the coder matches it (folded; lemma or stem when inflecting)."""
+
+    def __init__(self, lexicon: Lexicon) -> None:
+        self.keep_accents = lexicon.keep_accents
+        self.functions = {kind: lru_cache(maxsize=None)(key_function(mode, lexicon.language,
+                                                                     lexicon.keep_accents))
+                          for kind, mode in (("lemma", True), ("stem", INFLECT_STEM))}
+
+    def of(self, kind: str, word: str) -> str:
+        """The (first) key of ``word`` under ``kind`` ("lemma" or "stem")."""
+        return self.functions[kind](word)[0]
+
+    def words(self, term: Term) -> tuple[tuple[str, str], ...]:
+        """How each word matches: ("prefix", p), ("lemma", k), ("stem", k) or ("exact", w)."""
+        keys = []
+        for word in term.words:
+            if word.endswith("*"):
+                keys.append(("prefix", fold(word[:-1], self.keep_accents)))
+            elif term.inflect:
+                kind = "stem" if term.inflect == INFLECT_STEM else "lemma"
+                keys.append((kind, self.of(kind, word)))
+            else:
+                keys.append(("exact", fold(word, self.keep_accents)))
+        return tuple(keys)
 
 
-def _word_keys(term: Term, stem) -> tuple[tuple[str, str], ...]:
-    """How each word matches: ("prefix", p), ("stem", s) or ("exact", w)."""
-    keys = []
-    for word in term.words:
-        if word.endswith("*"):
-            keys.append(("prefix", word[:-1]))
-        elif term.inflect and stem is not None:
-            keys.append(("stem", stem(word)))
-        else:
-            keys.append(("exact", word))
-    return tuple(keys)
-
-
-def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_words, stem) -> bool:
+def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_words, keys: _Keys) -> bool:
     """Does every text matched by term ``a`` include the texts matched by term ``b``?"""
     if len(a) != len(b):
         return False
@@ -40,10 +48,12 @@ def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_wo
         if kind_a == "prefix":
             if kind_b == "prefix":
                 ok = value_b.startswith(value_a)
-            else:  # for a stem, the word as written (its other forms mostly share the prefix)
-                ok = (word_b if kind_b == "stem" else value_b).startswith(value_a)
-        elif kind_a == "stem":
-            ok = kind_b != "prefix" and (value_b if kind_b == "stem" else stem(value_b)) == value_a
+            else:  # for a lemma or stem, the word as written (its other forms mostly share the prefix)
+                ok = (fold(word_b, keys.keep_accents) if kind_b in ("lemma", "stem") else value_b
+                      ).startswith(value_a)
+        elif kind_a in ("lemma", "stem"):
+            ok = (kind_b == kind_a and value_b == value_a) or (kind_b == "exact"
+                                                                and keys.of(kind_a, value_b) == value_a)
         else:
             ok = kind_b == "exact" and value_a == value_b
         if not ok:
@@ -61,7 +71,8 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
         A term matches the same words as a term of another theme, and neither
         theme is an ancestor of the other (one answer would count for both).
         Inflection twins (``queue`` / ``queues`` with ``inflect``, by the
-        Snowball stemmer of the lexicon's language) and wildcards covering a
+        lemmatiser of the lexicon's language, or its Snowball stemmer for
+        ``inflect: stem``) and wildcards covering a
         whole term (``toilet*`` / ``toilets``) count as the same.
     redundant
         Within one theme, every match of a term is already a match of another
@@ -97,16 +108,16 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
     """
     import pandas as pd
 
-    stem = _stemmer(lexicon.language)
+    stem = _Keys(lexicon)
     rows: list[tuple[str, str, str, int, str]] = []
-    entries = [(theme, term, _word_keys(term, stem)) for theme in lexicon.themes for term in theme.terms]
+    entries = [(theme, term, stem.words(term)) for theme in lexicon.themes for term in theme.terms]
     related = {theme.id: {theme.id, *lexicon.ancestors(theme.id)} for theme in lexicon.themes}
 
     # Candidate pairs (covering, covered): same length and a first word that can match the same
     # tokens (the same stem, or starting with a wildcard's prefix).
     def first_key(keys: tuple[tuple[str, str], ...]) -> tuple[str, str]:
         kind, value = keys[0]
-        return ("stem", stem(value)) if kind == "exact" and stem is not None else (kind, value)
+        return ("lemma", stem.of("lemma", value)) if kind == "exact" else (kind, value)
 
     by_first: dict[tuple[int, tuple[str, str]], list[int]] = {}
     for index, (_, term, keys) in enumerate(entries):
@@ -169,7 +180,7 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
                 hit = next((offset for offset in range(len(phrase.words) - size + 1)
                             if _covers(keys, phrase_keys[offset:offset + size],
                                        phrase.words[offset:offset + size], stem)
-                            and (theme.negated == "keep"
+                            and (theme.negated != "drop"
                                  or not any(is_negation_cue(word) for word in phrase.words[:offset]))),
                            None)
                 if hit is not None:
@@ -180,7 +191,7 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
 
     # An exclusion that is part of every match of a term vetoes that term for good.
     for theme in lexicon.themes:
-        exclusion_keys = [(exclusion, _word_keys(exclusion, stem)) for exclusion in theme.exclusions]
+        exclusion_keys = [(exclusion, stem.words(exclusion)) for exclusion in theme.exclusions]
         for term in theme.terms:
             if position[id(term)] in reported:
                 continue

@@ -37,7 +37,7 @@ import re
 import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from functools import cache, lru_cache
+from functools import lru_cache
 from importlib import resources
 
 import numpy as np
@@ -65,11 +65,13 @@ _LETTERS = f"[^\\W_]+(?:[{_mark_class()}]+[^\\W_]*)*"
 _CURRENCY = r"[$€£¥₹]"
 _EMOJI = (r"[\U0001F000-\U0001FAFF\u2600-\u27BF\u2B00-\u2BFF]"
           r"(?:[\uFE0F\u200D\U0001F3FB-\U0001F3FF][\U0001F000-\U0001FAFF\u2600-\u27BF]?)*")
-_BREAK = r"[.!?;:,()\[\]\"]|-+"
+# Clause breaks: punctuation, brackets, slash, ampersand, vertical bar, bullets, tab and
+# line breaks (a blank line is two of them). "&" between letters stays inside a word ("b&b").
+_BREAK = r"[.!?;:,()\[\]{}\"/&|\u2022\u2023\u25e6\u25aa\u25cf\t\n\r\x0b\x0c]|-+"
 #: The one tokeniser pattern; documents and lexicon terms both go through it.
 # Words come first (most tokens are words, so most matches succeed on the first branch);
 # a digit run continues over ".", "," or ":" plus digits, so "3.50" and "10:30" stay whole.
-_WORD_OR_NUMBER = f"{_LETTERS}(?:['\\-]{_LETTERS}|(?<=\\d)[.,:]\\d+)*"
+_WORD_OR_NUMBER = f"{_LETTERS}(?:['\\-]{_LETTERS}|(?<=[^\\W\\d_])&(?=[^\\W\\d_]){_LETTERS}|(?<=\\d)[.,:]\\d+)*"
 TOKEN_PATTERN = re.compile(
     f"{_WORD_OR_NUMBER}|{_CURRENCY}|{_EMOJI}|{_BREAK}|{DOCUMENT_SEPARATOR}"
 )
@@ -83,13 +85,25 @@ NEGATION_CUES = frozenset(
 )
 #: Words that close a negation scope as punctuation does.
 CONTRAST_WORDS = frozenset("but however although though yet except".split())
+#: Phrases that hold a negation cue without negating anything: their cue opens no scope.
+#: ("not only crowded but dirty" is about crowding; "can't wait to come back" is praise.)
+NON_NEGATING_PHRASES = (
+    "not only", "not just", "not to mention", "no doubt", "without doubt", "without a doubt",
+    "no wonder", "nothing but", "can't wait", "cannot wait", "cant wait", "couldn't be happier",
+    "could not be happier", "couldn't have been happier", "no problem at all", "no problems at all",
+    "never fails to",
+)
 
 _DASHES_TO_BREAK = "\u2013\u2014\u2015\u2E3A\u2E3B"
 _HYPHENS = "\u2010\u2011\u2012\u2212\uFE63\uFF0D"
 _SINGLE_QUOTES = "\u2018\u2019\u201A\u201B\u2032\u02BC\u0060\u00B4"
 _DOUBLE_QUOTES = "\u201C\u201D\u201E\u201F\u2033\u00AB\u00BB"
 _SPACES = ("\u00A0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200A\u200B"
-           "\u2028\u2029\u202F\u205F\u3000\uFEFF")
+           "\u202F\u205F\u3000\uFEFF")
+#: Line and paragraph separators become line breaks (clause breaks, like "\n").
+_LINE_BREAKS = "\u2028\u2029\u0085"
+#: Control characters that stay as they are: tab and line breaks are clause breaks.
+_KEPT_CONTROLS = "\t\n\r\x0b\x0c"
 
 
 def _build_table() -> dict[int, str]:
@@ -98,7 +112,9 @@ def _build_table() -> dict[int, str]:
                           (_DOUBLE_QUOTES, '"'), (_SPACES, " ")):
         table.update({ord(c): target for c in chars})
     for code in list(range(0x00, 0x20)) + [0x7F]:
-        table[code] = " "
+        if chr(code) not in _KEPT_CONTROLS:
+            table[code] = " "
+    table.update({ord(c): "\n" for c in _LINE_BREAKS})
     return table
 
 
@@ -194,25 +210,6 @@ def token_spans(text: str) -> list[tuple[int, int]]:
     return [(int(origin[start]), int(end_origin[end])) for start, end in spans]
 
 
-#: Lexicon ``language`` codes with a Snowball stemmer in nltk (which needs no data download).
-SNOWBALL_LANGUAGES = {
-    "en": "english", "da": "danish", "de": "german", "es": "spanish", "fi": "finnish",
-    "fr": "french", "hu": "hungarian", "it": "italian", "nb": "norwegian", "nl": "dutch",
-    "no": "norwegian", "pt": "portuguese", "ro": "romanian", "ru": "russian", "sv": "swedish",
-}
-
-
-@cache
-def snowball_stemmer(language: str):
-    """The Snowball ``stem`` function for a language code ("en", "de-AT"...), or None if nltk has none."""
-    name = SNOWBALL_LANGUAGES.get(language.split("-")[0].split("_")[0].lower())
-    if name is None:
-        return None
-    from nltk.stem.snowball import SnowballStemmer  # imported late: nltk is slow to import
-
-    return SnowballStemmer(name).stem
-
-
 @lru_cache(maxsize=1)
 def default_stop_words() -> frozenset[str]:
     """The English stop-word list shipped in ``textkit/data`` (negations kept out)."""
@@ -280,6 +277,28 @@ class TokenStream:
         """
         return self.negated_at(np.arange(self.n_tokens, dtype=np.int64), window)
 
+    def phrase_starts_removed(self, positions: np.ndarray, phrases: Sequence[str]) -> np.ndarray:
+        """``positions`` (sorted token positions) without those where one of ``phrases`` starts.
+
+        A phrase must lie within one document, its words adjacent (a break
+        token between them means no match).
+        """
+        if not len(positions):
+            return positions
+        index = {token: code for code, token in enumerate(self.vocabulary.tolist())}
+        document_end = self.doc_offsets[np.searchsorted(self.doc_offsets, positions, side="right")]
+        starts_phrase = np.zeros(len(positions), dtype=bool)
+        for phrase in phrases:
+            codes = [index.get(word, -1) for word in tokenize(phrase)]
+            if min(codes) < 0:
+                continue  # a word of the phrase never occurs
+            match = positions + len(codes) <= document_end
+            for offset, code in enumerate(codes):
+                at = np.minimum(positions + offset, max(self.n_tokens - 1, 0))
+                match &= self.codes[at] == code
+            starts_phrase |= match
+        return positions[~starts_phrase]
+
     def negated_at(self, positions: np.ndarray, window: int = 4) -> np.ndarray:
         """:meth:`negated_mask` at the given token positions only, shape (len(positions),).
 
@@ -290,7 +309,8 @@ class TokenStream:
         positions = np.asarray(positions, dtype=np.int64)
         cue_flags = self.vocabulary_flags(is_negation_cue)
         stop_flags = self.vocabulary_flags(lambda t: is_break_token(t) or t in CONTRAST_WORDS)
-        cue_positions = np.flatnonzero(cue_flags[self.codes])
+        cue_positions = self.phrase_starts_removed(np.flatnonzero(cue_flags[self.codes]),
+                                                   NON_NEGATING_PHRASES)
         document_starts = self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]
         stop_positions = np.union1d(np.flatnonzero(stop_flags[self.codes]), document_starts)
 
