@@ -199,7 +199,7 @@ def test_lexicon_check_prints_lint_and_every_problem(tmp_path, capsys):
 def test_lexicon_check_with_a_survey_lists_unused_terms(capsys):
     code, stdout, _ = run(["lexicon", "check", str(LEXICON), "--survey", str(DEMO_CONFIG), "--quiet"], capsys)
     assert code == 0
-    assert "terms that matched no answer" in stdout.lower()
+    assert "terms matched at least one answer" in stdout and len(stdout.splitlines()) < 60
 
 
 def test_agreement_command_writes_tables(tmp_path, capsys):

@@ -25,10 +25,10 @@ from .text.redact import redact_all
 from .text.tokens import TokenStream, tokenize_corpus
 
 #: Columns of ``evidence.csv``.
-EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "matched_text"]
+EVIDENCE_COLUMNS = ["response_id", "question", "theme", "term", "start", "end", "negated", "matched_text"]
 #: Columns of ``coverage.csv``.
 COVERAGE_COLUMNS = ["question", "theme", "label", "parent", "responses_coded", "answered", "share",
-                    "weighted_share"]
+                    "weighted_share", "negated_share"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -42,14 +42,20 @@ class CodedSurvey:
         ``response_id``, ``question``, the design/wave/group columns under their
         own names, ``answered`` (0/1), one 0/1 column per theme id (parents rolled
         up), ``n_themes`` (distinct themes whose own terms matched: a parent
-        reached only through its child is not counted again) and ``uncoded`` (1 when answered but no theme matched).
+        reached only through its child is not counted again), ``nothing_to_report`` (1 when the
+        answer says there is nothing to report: "Nothing", "All good"; see
+        :mod:`textkit.coding.nothing`) and ``uncoded`` (1 when answered, no theme matched and
+        it is not a nothing-to-report answer).
     texts : Series
-        The answer texts aligned with ``coded`` rows (non-answers as None).
+        The answer texts aligned with ``coded`` rows (non-answers as None), redacted
+        (:mod:`textkit.text.redact`, plus the config's ``redact_names``) before coding.
     evidence : DataFrame
-        ``EVIDENCE_COLUMNS``; ``matched_text`` is redacted.
+        ``EVIDENCE_COLUMNS``; spans and ``matched_text`` refer to the redacted ``texts``.
     coverage : DataFrame
         ``COVERAGE_COLUMNS``: per question and theme, responses coded and their
-        unweighted and weighted share of the answered responses.
+        unweighted and weighted share of the answered responses, and
+        ``negated_share``: of the responses coded with the theme, the share
+        whose every mention of it is negated ("the guide was not friendly").
     lexicon : Lexicon
     config : SurveyConfig
     result : CodingResult
@@ -86,6 +92,15 @@ class CodedSurvey:
     @property
     def themes(self) -> tuple[str, ...]:
         return self.result.themes
+
+    @property
+    def nothing_to_report(self) -> np.ndarray:
+        """Per ``coded`` row: does the answer say there is nothing to report? shape (n_rows,), bool.
+
+        Suggestions and topic models should leave these answers out: they are
+        neither a theme nor a gap in the lexicon.
+        """
+        return self.coded["nothing_to_report"].to_numpy(dtype=bool)
 
     @property
     def roles(self) -> dict:
@@ -143,7 +158,10 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
         values = as_text.where(pd.Series(mask, index=texts.index), None).to_numpy(dtype=object)
         raw_texts[q_index::n_questions] = values
         answered[q_index::n_questions] = mask
-    text_list = raw_texts.tolist()
+    # One redaction step at the entry: every output downstream (evidence, keyness, suggestions,
+    # lexicon-check examples, quotes) sees answers without contact details or listed names.
+    text_list = redact_all(raw_texts.tolist(), config.redact_names)
+    raw_texts = np.asarray(text_list, dtype=object)
     stream = tokenize_corpus(text_list, offsets=True)
 
     step("coding")
@@ -153,7 +171,7 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     step("assembling tables")
     coded = _coded_table(frame, config, questions, answered, result)
     evidence = _evidence_table(coded, result)
-    coverage = _coverage_table(coded, lex, config)
+    coverage = _coverage_table(coded, lex, config, result)
     manifest = {
         "command": "code",
         "config": {"path": str(config.path), "sha256": file_sha256(config.path)},
@@ -189,7 +207,9 @@ def _coded_table(frame: pd.DataFrame, config: SurveyConfig, questions: list[str]
         columns[theme] = dense[:, index]
     n_themes = np.diff(result.direct.indptr).astype(np.int16)
     columns["n_themes"] = n_themes
-    columns["uncoded"] = (answered & (n_themes == 0)).astype(np.int8)
+    nothing = answered & result.nothing_to_report
+    columns["nothing_to_report"] = nothing.astype(np.int8)
+    columns["uncoded"] = (answered & (n_themes == 0) & ~nothing).astype(np.int8)
     return pd.DataFrame(columns)
 
 
@@ -202,16 +222,22 @@ def _evidence_table(coded: pd.DataFrame, result: CodingResult) -> pd.DataFrame:
         "term": result.evidence["term"].to_numpy(),
         "start": result.evidence["start"].to_numpy(),
         "end": result.evidence["end"].to_numpy(),
-        "matched_text": redact_all(result.evidence["matched_text"].tolist()),
+        "negated": result.evidence["negated"].to_numpy(dtype=bool),
+        "matched_text": result.evidence["matched_text"].to_numpy(dtype=object),  # texts were redacted
     })
     return evidence[EVIDENCE_COLUMNS]
 
 
-def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig) -> pd.DataFrame:
+def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig,
+                    result: CodingResult) -> pd.DataFrame:
     themes = list(lexicon.ids)
     weights = coded[config.weight].to_numpy(dtype=float) if config.weight else np.ones(len(coded))
     answered = coded["answered"].to_numpy(dtype=bool)
-    columns = themes + ["uncoded"]  # "answered, no theme" is one more 0/1 column to share out
+    # "nothing to report" and "answered, no theme" are two more 0/1 columns to share out
+    columns = themes + ["nothing_to_report", "uncoded"]
+    # responses whose every counted mention of a theme is negated: negated hits == all hits
+    all_negated = (result.hits - result.negated).toarray() == 0
+    all_negated &= result.matrix.toarray() != 0
     frames = []
     for question in config.questions:
         in_question = (coded["question"] == question).to_numpy() & answered
@@ -219,17 +245,43 @@ def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig)
         w = weights[in_question]
         n_answered = int(in_question.sum())
         counts = values.sum(axis=0)
+        negated = all_negated[in_question].sum(axis=0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            negated_share = np.append(negated / counts[:len(themes)], [np.nan, np.nan])
         frames.append(pd.DataFrame({
             "question": question,
-            "theme": themes + ["(uncoded)"],
-            "label": [t.label for t in lexicon.themes] + ["Answered, no theme"],
-            "parent": [t.parent or "" for t in lexicon.themes] + [""],
+            "theme": themes + ["(nothing to report)", "(uncoded)"],
+            "label": [t.label for t in lexicon.themes] + ["Nothing to report", "Answered, no theme"],
+            "parent": [t.parent or "" for t in lexicon.themes] + ["", ""],
             "responses_coded": counts.astype(np.int64),
             "answered": n_answered,
             "share": counts / n_answered if n_answered else np.nan,
             "weighted_share": (w @ values) / w.sum() if w.sum() > 0 else np.nan,
+            "negated_share": negated_share,
         }))
     return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
+
+
+#: Columns of :func:`term_hit_table`.
+TERM_HIT_COLUMNS = ["theme", "term", "hits", "answers", "examples"]
+
+
+def term_hit_table(survey: CodedSurvey, n_examples: int = 3) -> pd.DataFrame:
+    """Per lexicon term: counted ``hits``, distinct ``answers`` and up to ``n_examples``
+    distinct example matches (redacted, joined by " | "), in lexicon order."""
+    hits = survey.result.term_hits
+    evidence = survey.evidence.assign(answer=survey.evidence["response_id"] + "\x1f"
+                                      + survey.evidence["question"])
+    grouped = evidence.groupby(["theme", "term"], sort=False)
+    answers = grouped["answer"].nunique()
+    examples = grouped["matched_text"].agg(
+        lambda texts: " | ".join(list(dict.fromkeys(t.lower() for t in texts if isinstance(t, str)))[:n_examples]))
+    table = pd.DataFrame({"theme": hits.index.get_level_values("theme"),
+                          "term": hits.index.get_level_values("term"), "hits": hits.to_numpy()})
+    keys = pd.MultiIndex.from_frame(table[["theme", "term"]])
+    table["answers"] = answers.reindex(keys).fillna(0).astype(np.int64).to_numpy()
+    table["examples"] = examples.reindex(keys).fillna("").to_numpy()
+    return table[TERM_HIT_COLUMNS]
 
 
 def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
@@ -278,7 +330,7 @@ def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
                          source=manifest_path)
     frame, _ = read_table(data_path)
     if data_path.suffix.lower() == ".csv":
-        numeric = [c for c in (*manifest["themes"], "answered", "n_themes", "uncoded",
+        numeric = [c for c in (*manifest["themes"], "answered", "n_themes", "nothing_to_report", "uncoded",
                                manifest["roles"].get("weight"), manifest["roles"].get("fpc"))
                    if c and c in frame.columns]
         for column in numeric:

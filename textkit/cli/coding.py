@@ -38,9 +38,11 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: 
     coverage = survey.coverage
     for question, rows in coverage.groupby("question", sort=False):
         uncoded = rows.loc[rows["theme"] == "(uncoded)", "share"].iloc[0]
-        top = rows[rows["theme"] != "(uncoded)"].nlargest(3, "weighted_share")
+        nothing = rows.loc[rows["theme"] == "(nothing to report)", "share"].iloc[0]
+        top = rows[~rows["theme"].str.startswith("(")].nlargest(3, "weighted_share")
         listed = ", ".join(f"{r.theme} {r.weighted_share:.0%}" for r in top.itertuples())
-        click.echo(f"  {question}: top themes {listed}; answered but uncoded {uncoded:.0%}")
+        click.echo(f"  {question}: top themes {listed}; nothing to report {nothing:.0%}; "
+                   f"answered but uncoded {uncoded:.0%}")
     click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir}")
     click.echo("caution: automated coding is an estimate - check the lexicon against a hand-coded "
                "sample before reporting.")
@@ -54,14 +56,18 @@ def lexicon_group() -> None:
 @lexicon_group.command("check")
 @click.argument("lexicon", type=click.Path(path_type=Path))
 @click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
-              help="Also code this survey and list terms that never matched and themes with no hits.")
+              help="Also code this survey: summary of terms and themes that matched nothing.")
+@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
+              help="With --survey: folder for term-hits.csv (per term: hits, answers, example matches).")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
-def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> None:
+def lexicon_check_command(lexicon: Path, config: Path | None, out_dir: Path | None, quiet: bool) -> None:
     """Validate LEXICON and print its lint report."""
     from ..coding.lexicon import load_lexicon
     from ..coding.lint import format_lint, lint_lexicon
-    from ..errors import LexiconError
+    from ..errors import InputError, LexiconError
 
+    if out_dir is not None and config is None:
+        raise InputError("--out needs --survey: the per-term table counts matches in a survey")
     try:
         lex = load_lexicon(lexicon)
     except LexiconError as error:
@@ -70,17 +76,32 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
             where = f"{error.source}:{line}" if line else str(error.source)
             click.echo(f"{where}: {message}", err=True)
         raise
-    term_hits = theme_hits = None
-    if config is not None:
-        from ..pipeline import code_survey
-
-        with steps(5, quiet) as progress:
-            survey = code_survey(config, lexicon=lex, progress=progress)
-        term_hits = survey.result.term_hits.to_dict()
-        theme_hits = dict(zip(survey.themes, map(int, survey.theme_matrix.sum(axis=0).A1), strict=True))
     n_terms = sum(len(t.terms) for t in lex.themes)
     click.echo(f"{lexicon}: valid - {len(lex.themes)} themes, {n_terms} terms (sha256 {lex.sha256[:12]})")
-    click.echo(format_lint(lint_lexicon(lex, term_hits=term_hits, theme_hits=theme_hits)))
+    if config is None:
+        click.echo(format_lint(lint_lexicon(lex)))
+        return
+    from ..pipeline import code_survey, term_hit_table
+
+    with steps(5, quiet) as progress:
+        survey = code_survey(config, lexicon=lex, progress=progress)
+    table = term_hit_table(survey)
+    theme_hits = dict(zip(survey.themes, map(int, survey.theme_matrix.sum(axis=0).A1), strict=True))
+    lint = lint_lexicon(lex, theme_hits=theme_hits)
+    unused = int((table["hits"] == 0).sum())
+    click.echo(f"on {config}: {n_terms - unused:,} of {n_terms:,} terms matched at least one answer; "
+               f"{unused:,} matched none; {sum(1 for v in theme_hits.values() if not v)} themes coded "
+               "no response")
+    if out_dir is not None:
+        from ..io.output import csv_writer, write_outputs
+
+        manifest = {"command": "lexicon check", "lexicon": survey.manifest.get("lexicon"),
+                    "config": survey.manifest.get("config"), "survey": survey.manifest.get("survey")}
+        write_outputs(out_dir, {"term-hits.csv": csv_writer(table)}, manifest)
+        click.echo(f"wrote term-hits.csv (every term: hits, answers, example matches) to {out_dir}")
+    else:
+        click.echo("add --out DIR to write every term's hits, answers and example matches to a table")
+    click.echo(format_lint(lint))
 
 
 @click.command("agreement")
@@ -92,9 +113,11 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
 @click.option("--text-column", default="text", show_default=True, help="Column holding the answers.")
 @click.option("--codes-column", default="themes", show_default=True,
               help="Column holding the hand codes (theme ids separated by ';').")
+@click.option("--redact-name", "redact_names", multiple=True, metavar="NAME",
+              help="A name to remove from disagreements.csv (repeatable); contact details always are.")
 @click.option("--quiet", is_flag=True, help="No summary.")
 def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_column: str,
-                      codes_column: str, quiet: bool) -> None:
+                      codes_column: str, redact_names: tuple[str, ...], quiet: bool) -> None:
     """Compare the lexicon's codes with HAND_CODED answers (precision, recall, F1, kappa)."""
     from ..coding.agreement import compare_with_hand_codes
     from ..coding.lexicon import load_lexicon
@@ -109,7 +132,7 @@ def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_
             raise InputError(f"no column '{column}'; the columns are: {', '.join(map(str, frame.columns))}",
                              source=hand_coded, column=column)
     table, disagreements = compare_with_hand_codes(frame[text_column].tolist(), frame[codes_column].tolist(),
-                                                   lexicon, source=str(hand_coded))
+                                                   lexicon, source=str(hand_coded), redact_names=redact_names)
     manifest = {"command": "agreement",
                 "hand_coded": {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
                 "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256}, "notes": notes}

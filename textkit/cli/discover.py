@@ -10,7 +10,7 @@ from pathlib import Path
 import click
 
 #: Columns of ``coded`` that are never group variables.
-_NOT_GROUPS = {"question", "answered", "n_themes", "uncoded"}
+_NOT_GROUPS = {"question", "answered", "n_themes", "nothing_to_report", "uncoded"}
 
 
 def _load(config: Path, quiet: bool, total: int):
@@ -196,7 +196,8 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
     coded = survey.coded
     chosen = _questions(survey, questions)
     matrix, terms, n_words = document_term_matrix(survey.stream, binary=True)
-    answered = coded["answered"].to_numpy(dtype=bool) & coded["question"].isin(chosen).to_numpy()
+    answered = coded["answered"].to_numpy(dtype=bool) & coded["question"].isin(chosen).to_numpy() \
+        & ~survey.nothing_to_report  # "Nothing", "All good": neither a theme nor a gap
     themes = list(survey.themes)
 
     def covered(candidates: np.ndarray):

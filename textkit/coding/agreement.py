@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from ..text.redact import redact_all
 from .lexicon import Lexicon
 
 #: Columns of the agreement table.
@@ -109,7 +110,8 @@ def agreement_table(hand: np.ndarray, machine: np.ndarray, themes: Sequence[str]
 
 
 def compare_with_hand_codes(texts: Sequence[str | None], hand_codes: Sequence[str | None],
-                            lexicon: Lexicon, *, source: str = "hand codes") -> tuple[pd.DataFrame, pd.DataFrame]:
+                            lexicon: Lexicon, *, source: str = "hand codes", redact_names: Sequence[str] = ()
+                            ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Code ``texts`` with ``lexicon`` and compare with ``hand_codes``.
 
     Returns
@@ -117,8 +119,9 @@ def compare_with_hand_codes(texts: Sequence[str | None], hand_codes: Sequence[st
     table : DataFrame
         :func:`agreement_table` over the lexicon's themes and any extra hand-code ids.
     disagreements : DataFrame
-        One row per answer where the two differ: ``row``, ``text``, ``hand``,
-        ``machine``, ``missed`` (hand only), ``extra`` (machine only).
+        One row per answer where the two differ: ``row``, ``text`` (redacted:
+        contact details and ``redact_names`` removed), ``hand``, ``machine``,
+        ``missed`` (hand only), ``extra`` (machine only).
     """
     from .coder import ThemeCoder
 
@@ -135,7 +138,7 @@ def compare_with_hand_codes(texts: Sequence[str | None], hand_codes: Sequence[st
     rows = np.flatnonzero((hand != machine).any(axis=1))
     disagreements = pd.DataFrame({
         "row": rows + 1,
-        "text": [texts[r] for r in rows],
+        "text": redact_all([texts[r] for r in rows], redact_names),
         "hand": [";".join(names[hand[r] == 1]) for r in rows],
         "machine": [";".join(names[machine[r] == 1]) for r in rows],
         "missed": [";".join(names[(hand[r] == 1) & (machine[r] == 0)]) for r in rows],

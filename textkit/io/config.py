@@ -69,7 +69,7 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
-    "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
+    "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers", "redact_names",
 )
 _DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu", "nest")
 _REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
@@ -132,6 +132,8 @@ class SurveyConfig:
         Seed for every random step (default 0).
     non_answers : tuple of str
         Normalised (trimmed, single-spaced, lower-cased) answers that count as not answered.
+    redact_names : tuple of str
+        Names (staff, guides, places) removed from every output that shows answer text.
     """
 
     path: Path | None
@@ -154,6 +156,7 @@ class SurveyConfig:
     lexicon: Path | None = None
     seed: int = 0
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
+    redact_names: tuple[str, ...] = ()
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
@@ -373,6 +376,8 @@ class _Validator:
         out["lexicon"] = self.path(entries.get("lexicon", _Item("null", None)), "lexicon", optional=True)
         out["seed"] = self.seed(entries.get("seed", _Item("null", None)))
         out["non_answers"] = self.non_answers(entries.get("non_answers"))
+        names = entries.get("redact_names")
+        out["redact_names"] = tuple(n.strip() for n in self.non_answers(names) if n.strip()) if names else ()
         return out
 
     def reading(self, entries: dict[str, _Item], key_line: dict[str, int | None],
