@@ -602,3 +602,100 @@ def test_coder_agrees_with_plain_python_reference(lexicon, documents):
     np.testing.assert_array_equal(result.matrix.toarray(), (hits > 0).astype(int))
     ours = sorted(result.evidence[["document", "theme", "term", "start", "end"]].itertuples(index=False, name=None))
     assert ours == evidence
+
+
+# --- clause boundaries, case and accents, negation that keeps the topic -----------------
+
+SEPARATORS = [".", ",", ";", ":", "(", ")", "[", "]", "{", "}", "/", "&", "|", "\u2022", "\t", "\n",
+              "\n\n", "\r\n", "\u2028", " - ", "\u2014"]
+
+
+@pytest.mark.parametrize("separator", SEPARATORS)
+def test_phrases_and_negation_scopes_stop_at_every_separator(separator):
+    phrase = parse_lexicon(one_theme_lexicon("long wait"))
+    dropped = parse_lexicon(one_theme_lexicon("toilet", negated="drop"))
+    # "&" between two letters joins a word ("b&b"), so it is tested with spaces around it only
+    for joined in ({f" {separator} "} if separator == "&" else {separator, f" {separator} "}):
+        assert coded(f"long{joined}wait", phrase) == set()
+        assert coded(f"no{joined}toilet", dropped) == {"theme"}  # the scope ended at the separator
+    assert coded("long wait", phrase) == {"theme"}
+    assert coded("no toilet", dropped) == set()
+
+
+def test_ampersand_inside_a_word_keeps_it_whole():
+    assert tokenize("B&B and AT&T") == ["b&b", "and", "at&t"]
+    assert coded("the b&b was grim", parse_lexicon(one_theme_lexicon("b&b"))) == {"theme"}
+
+
+@pytest.mark.parametrize(("term", "answer", "language"), [
+    ("καφές", "ΚΑΦΕΣ", "el"),  # Greek all-caps without the tonos, final sigma folded
+    ("ışık", "IŞIK", "tr"), ("izmir", "İZMİR", "tr"),  # Turkish dotless and dotted i
+    ("straße", "STRASSE", "de"), ("strasse", "Straße", "de"),  # German ß (full case folding)
+    ("café", "CAFE", "fr"), ("cafe", "café", "en"),  # accents folded by default
+])
+def test_case_folding_and_accents(term, answer, language):
+    # Unicode full case folding (Unicode Standard, CaseFolding.txt; common practice)
+    lexicon = parse_lexicon(f"lexicon: x\nlanguage: {language}\nsettings: {{inflect: false}}\n"
+                            f"themes:\n  - {{id: t, label: T, terms: ['{term}']}}\n")
+    result = code([f"un {answer} ici"], lexicon)
+    assert result.matrix[0, 0] == 1, (term, answer)
+    row = result.evidence.iloc[0]
+    assert f"un {answer} ici"[row.start:row.end] == answer  # spans point at the original characters
+
+
+def test_accents_keep_tells_words_apart():
+    lexicon = parse_lexicon("lexicon: x\nlanguage: es\nsettings: {inflect: false, accents: keep}\n"
+                            "themes:\n  - {id: t, label: T, terms: [año]}\n")
+    assert code(["el año", "el ano"], lexicon).matrix.toarray()[:, 0].tolist() == [1, 0]
+
+
+def test_negated_mentions_keep_their_topic_and_are_marked():
+    lexicon = parse_lexicon("lexicon: x\nthemes:\n"
+                            "  - {id: staff, label: S, terms: [guide, friendly]}\n"
+                            "  - {id: cost, label: C, negated: value, terms: [expensive]}\n"
+                            "  - {id: value, label: V, terms: [good value]}\n"
+                            "  - {id: queues, label: Q, negated: drop, terms: [queue]}\n")
+    result = code(["The guide was not friendly", "not expensive at all", "no queue", "expensive"], lexicon)
+    evidence = result.evidence
+    assert list(zip(evidence["document"], evidence["theme"], evidence["negated"], strict=True)) == [
+        (0, "staff", False), (0, "staff", True), (1, "value", True), (3, "cost", False)]
+    assert result.dropped["negated"] == 1  # "no queue" under negated: drop
+    assert result.negated.toarray()[1].tolist() == [0, 0, 1, 0]
+
+
+@pytest.mark.parametrize("answer", ["not only crowded but dirty", "not just crowded", "no doubt crowded",
+                                    "nothing but crowded", "can't wait for the crowded beach",
+                                    "couldn't be happier with the crowded beach"])
+def test_non_negating_phrases_open_no_scope(answer):
+    lexicon = parse_lexicon(one_theme_lexicon("crowded", negated="drop"))
+    assert coded(answer, lexicon) == {"theme"}
+    assert coded("not crowded", lexicon) == set()
+
+
+def test_evidence_names_the_term_that_matched():
+    lexicon = parse_lexicon(one_theme_lexicon("price, prices, pric*"))
+    evidence = code(["the prices", "the price", "pricey"], lexicon).evidence
+    assert evidence["term"].tolist() == ["prices", "price", "pric*"]
+
+
+@pytest.mark.parametrize(("answer", "expected"), [
+    ("Nothing", True), ("Nothing really.", True), ("No complaints at all 😊", True),
+    ("Can't think of anything", True), ("All good", True), ("It was perfect!", True),
+    ("Nothing, it was all perfect", True), ("nope", True), ("Not really", True),
+    ("nothing was clean", False), ("no toilets", False), ("not good", False),
+    ("nothing to report, but the staff were rude", False), ("The food was good", False),
+    ("No problem with parking", False), ("", False),
+])
+def test_nothing_to_report_list(answer, expected):
+    lexicon = load_lexicon(STARTER)
+    result = ThemeCoder(lexicon).fit([answer]).code([answer])
+    assert bool(result.nothing_to_report[0]) == expected
+    if expected:
+        assert result.matrix[0].nnz == 0
+
+
+def test_nothing_to_report_is_configurable_per_lexicon():
+    own = parse_lexicon("lexicon: x\nnothing_to_report: [rien]\nthemes:\n  - {id: t, label: T, terms: [x]}\n")
+    off = parse_lexicon("lexicon: x\nnothing_to_report: []\nthemes:\n  - {id: t, label: T, terms: [x]}\n")
+    assert code(["rien", "nothing"], own).nothing_to_report.tolist() == [True, False]
+    assert code(["nothing"], off).nothing_to_report.tolist() == [False]
