@@ -19,6 +19,7 @@ Example::
     lexicon: ../lexicons/visitor_experience.yaml
     seed: 20261202
     non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
+    corrections: corrections.csv     # optional: hand corrections applied after coding
 
 Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
 index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
@@ -70,6 +71,7 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
     "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
+    "corrections",
 )
 _DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu", "nest")
 _REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
@@ -132,6 +134,9 @@ class SurveyConfig:
         Seed for every random step (default 0).
     non_answers : tuple of str
         Normalised (trimmed, single-spaced, lower-cased) answers that count as not answered.
+    corrections : Path or None
+        A researcher's corrections (CSV, or a filled review workbook), applied after
+        automated coding on every run; resolved against the config's folder.
     """
 
     path: Path | None
@@ -154,6 +159,7 @@ class SurveyConfig:
     lexicon: Path | None = None
     seed: int = 0
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
+    corrections: Path | None = None
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
@@ -373,6 +379,8 @@ class _Validator:
         out["lexicon"] = self.path(entries.get("lexicon", _Item("null", None)), "lexicon", optional=True)
         out["seed"] = self.seed(entries.get("seed", _Item("null", None)))
         out["non_answers"] = self.non_answers(entries.get("non_answers"))
+        out["corrections"] = self.path(entries.get("corrections", _Item("null", None)), "corrections",
+                                       optional=True)
         return out
 
     def reading(self, entries: dict[str, _Item], key_line: dict[str, int | None],

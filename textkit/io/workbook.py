@@ -237,7 +237,8 @@ def read_coding_file(path: str | Path, *, sheets: Sequence[str] = (), optional_s
     path : path
         ``.csv``/``.tsv``/``.txt`` or ``.xlsx``/``.xlsm``.
     sheets : sequence of str
-        Workbook sheets to read, in order; each must exist. Default: the first sheet.
+        Workbook sheets to read, in order; each must exist. Default: the first sheet
+        (none when ``optional_sheets`` are given).
     optional_sheets : sequence of str
         Workbook sheets read when present (skipped when missing or with no data rows).
 
@@ -254,7 +255,7 @@ def read_coding_file(path: str | Path, *, sheets: Sequence[str] = (), optional_s
         frame, _ = read_table(source)
         return [SheetData(_restore(frame), str(source), None)]
     names = workbook_sheet_names(source)
-    wanted = list(sheets) or names[:1]
+    wanted = list(sheets) or ([] if optional_sheets else names[:1])
     out = []
     for name in wanted:
         if name not in names:
