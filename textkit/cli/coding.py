@@ -10,6 +10,7 @@ from pathlib import Path
 import click
 
 from .main import steps
+from .review import lexicon_diff_command
 
 
 @click.command("code")
@@ -49,6 +50,9 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: 
 @click.group("lexicon")
 def lexicon_group() -> None:
     """Check and inspect theme lexicons."""
+
+
+lexicon_group.add_command(lexicon_diff_command)
 
 
 @lexicon_group.command("check")

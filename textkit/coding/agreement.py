@@ -36,6 +36,7 @@ import pandas as pd
 from ..text.redact import redact_all
 from .handcodes import HandCodes, long_hand_codes
 from .lexicon import Lexicon
+from .review import terms_by_answer
 
 #: Columns of the agreement table.
 AGREEMENT_COLUMNS = ["theme", "in_lexicon", "n", "hand", "machine", "both", "prevalence",
@@ -344,14 +345,6 @@ class MachineCodes:
     nearly: list[str] = field(default_factory=list)
 
 
-def _evidence_lists(evidence: pd.DataFrame, n: int) -> list[str]:
-    labels = (evidence["theme"].astype(str) + ": " + evidence["term"].astype(str)).to_numpy(dtype=object)
-    out = [""] * n
-    for doc, group in pd.Series(labels).groupby(evidence["document"].to_numpy(), sort=True):
-        out[int(doc)] = "; ".join(dict.fromkeys(group.tolist()))
-    return out
-
-
 def code_for_agreement(texts: Sequence[str | None], lexicon: Lexicon) -> MachineCodes:
     """Code ``texts`` with ``lexicon``; also list the terms that nearly fired.
 
@@ -371,8 +364,8 @@ def code_for_agreement(texts: Sequence[str | None], lexicon: Lexicon) -> Machine
     merged = loose.evidence[keep].merge(result.evidence[keep], how="left", indicator=True, on=keep)
     nearly = merged[merged["_merge"] == "left_only"]
     return MachineCodes(matrix=result.matrix.toarray().astype(np.int8),
-                        fired=_evidence_lists(result.evidence, len(texts)),
-                        nearly=_evidence_lists(nearly, len(texts)))
+                        fired=terms_by_answer(result.evidence, len(texts)),
+                        nearly=terms_by_answer(nearly, len(texts)))
 
 
 def disagreement_table(hand: HandCodes, machine: MachineCodes, texts: Sequence[str | None]) -> pd.DataFrame:
