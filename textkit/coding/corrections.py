@@ -160,16 +160,16 @@ def apply_corrections(coded: pd.DataFrame, direct: sp.spmatrix, lexicon: Lexicon
         own[cells] = codes
         final = ((own @ lexicon.rollup_matrix().toarray()) > 0).astype(np.int8)
         final[cells] = codes  # an explicit decision wins over the roll-up
-        before = coded[themes].to_numpy(dtype=np.int8)[touched]
+        before = coded[themes].to_numpy(dtype=np.int8)[touched].copy()
         explicit = np.zeros_like(final, dtype=bool)
         explicit[cells] = True
         marked = explicit | (final != before)
         changed = int((final != before).sum())
-        values = out[themes].to_numpy(dtype=np.int8)
+        values = out[themes].to_numpy(dtype=np.int8, copy=True)
         values[touched] = final
         for position, theme in enumerate(themes):
             out[theme] = values[:, position]
-        n_themes = out["n_themes"].to_numpy().copy()
+        n_themes = out["n_themes"].to_numpy(copy=True)
         n_themes[touched] = own.sum(axis=1)
         out["n_themes"] = n_themes.astype(out["n_themes"].dtype)
         out["uncoded"] = (answered & (values.sum(axis=1) == 0)).astype(np.int8)

@@ -103,6 +103,9 @@ def draw_sample(coded: pd.DataFrame, texts: Sequence[str | None], themes: Sequen
     draws = np.zeros(len(cells), dtype=np.int64)
     draws[in_pool] = allocate(sizes[in_pool], n_pool)
     draws[~in_pool] = allocate(sizes[~in_pool], n - int(draws[in_pool].sum()))
+    # too few answers outside the pool (or in it): take the rest from the other side
+    draws[in_pool] += allocate(sizes[in_pool] - draws[in_pool], n - int(draws.sum()))
+    draws[~in_pool] += allocate(sizes[~in_pool] - draws[~in_pool], n - int(draws.sum()))
     rng = np.random.default_rng(seed)
     chosen = []
     for cell in range(len(cells)):  # one draw per cell (a few dozen), not per answer
