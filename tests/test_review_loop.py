@@ -12,7 +12,6 @@ import pytest
 
 from textkit.cli import main
 from textkit.coding.sampling import allocate
-from textkit.pipeline import code_survey
 
 LEXICON_V1 = """lexicon: park
 version: '1'
