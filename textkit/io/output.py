@@ -65,6 +65,29 @@ def json_writer(payload: Any) -> Writer:
     return text_writer(json.dumps(payload, indent=2, sort_keys=True, default=str) + "\n")
 
 
+def figure_png_writer(figure: Any, dpi: int = 200) -> Writer:
+    """Writer for a matplotlib figure as PNG (``dpi`` at least 200, for print)."""
+    if dpi < 200:
+        raise ValueError(f"PNG charts are written at 200 dpi or more, got {dpi}")
+    return lambda path: figure.savefig(path, format="png", dpi=dpi, metadata={"Software": None})
+
+
+def figure_svg_writer(figure: Any) -> Writer:
+    """Writer for a matplotlib figure as SVG, byte-identical across runs.
+
+    No date in the metadata, and element ids from a fixed hash salt (set here
+    in case the caller's style did not).
+    """
+
+    def write(path: Path) -> None:
+        import matplotlib
+
+        with matplotlib.rc_context({"svg.hashsalt": "textkit"}):
+            figure.savefig(path, format="svg", metadata={"Date": None})
+
+    return write
+
+
 def write_outputs(out_dir: str | Path, files: Mapping[str, Writer],
                   manifest: Mapping[str, Any] | None = None) -> list[Path]:
     """Write every file of ``files`` into ``out_dir`` atomically.
