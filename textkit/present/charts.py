@@ -179,7 +179,8 @@ def difference_rows(comparisons: pd.DataFrame, *, question: str, kind: str, grou
 
     kind : {'waves', 'vs_rest', 'pairs'}
         ``waves``: wave against wave for the whole sample, one row per theme;
-        ``vs_rest``: ``group`` of ``group_var`` against the rest within ``wave``, one row per theme;
+        ``vs_rest``: ``group`` of ``group_var`` against the rest within ``wave``, one row per theme
+        (every group, one row per group x theme, when ``group`` is None);
         ``pairs``: every comparison of ``group_var`` (pairs and vs rest) for ``theme`` within ``wave``.
     """
     _require(comparisons, ["question", "theme", "group_var", "group_a", "group_b", "wave_a", "wave_b",
@@ -195,11 +196,23 @@ def difference_rows(comparisons: pd.DataFrame, *, question: str, kind: str, grou
     rows = _choose(rows, "group_var", group_var, "comparisons.csv")
     rows = _choose(rows[rows["wave_a"].astype(str) == rows["wave_b"].astype(str)], "wave_a", wave, "comparisons.csv")
     if kind == "vs_rest":
-        rows = _choose(rows[rows["group_b"].astype(str) == "(rest)"], "group_a", group, "comparisons.csv")
+        rows = rows[rows["group_b"].astype(str) == "(rest)"]
+        if group is None:
+            return rows.assign(row_label=rows["group_a"].astype(str) + " · " + rows["theme"].astype(str))
+        rows = _choose(rows, "group_a", group, "comparisons.csv")
         return rows.assign(row_label=rows["theme"].astype(str))
     rows = _choose(rows, "theme", theme, "comparisons.csv")
     other = rows["group_b"].astype(str).replace("(rest)", "the rest")
     return rows.assign(row_label=rows["group_a"].astype(str) + " vs " + other)
+
+
+def largest_differences(rows: pd.DataFrame, max_rows: int = 25, alpha: float = 0.05) -> pd.DataFrame:
+    """The ``max_rows`` rows with the largest absolute difference, significant ones (q <= alpha) first."""
+    significant = rows["q_value"].to_numpy(dtype=float) <= alpha if "q_value" in rows.columns \
+        else np.zeros(len(rows), bool)
+    ranked = rows.assign(_significant=significant, _size=rows["difference"].abs())
+    ranked = ranked.sort_values(["_significant", "_size"], ascending=False, kind="stable").head(max_rows)
+    return ranked.drop(columns=["_significant", "_size"])
 
 
 def differences_chart(rows: pd.DataFrame, *, alpha: float = 0.05, labels: Mapping[str, str] | None = None,
@@ -265,30 +278,65 @@ def keyness_chart(keyness: pd.DataFrame, *, question: str, group_var: str, group
         Terms per side.
     """
     side = keyness_comparison(keyness, question=question, group_var=group_var, group=group, reference=reference)
+    reference_name = "the rest" if reference == "(rest)" else reference
+    signed = _signed_measure(side, measure)
+    n_shown = int(min(top, (signed > 0).sum()) + min(top, (signed < 0).sum()))
+    with chart_style():
+        figure, axes = new_figure(n_shown, width=7.5, row_height=0.22)
+        _draw_keyness_bars(axes, side, measure, top, (group, reference_name))
+        axes.set_xlabel(f"{MEASURE_NAMES.get(measure, measure)}; ← {reference_name} · {group} →")
+        axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8).set_gid("legend")
+        frame_figure(figure, text or ChartText(f"Words and phrases that set {group} apart from {reference_name}",
+                                               question))
+        figure.subplots_adjust(left=0.27, right=0.74)
+    return figure
+
+
+def _draw_keyness_bars(axes: Any, side: pd.DataFrame, measure: str, top: int, names: tuple[str, str]) -> None:
     values = _signed_measure(side, measure)
     side = side.assign(value=values)
     left = side[side["value"] < 0].nsmallest(top, "value")
     right = side[side["value"] > 0].nlargest(top, "value")
     shown = pd.concat([left.sort_values("value", ascending=False), right.sort_values("value")])
     y = np.arange(len(shown), dtype=float)
-    reference_name = "the rest" if reference == "(rest)" else reference
+    positive = shown["value"].to_numpy() > 0
+    for chosen, colour, name in ((positive, category_colour(0), names[0]), (~positive, category_colour(1), names[1])):
+        axes.barh(y[chosen], shown["value"].to_numpy()[chosen], color=colour, height=0.7,
+                  label=f"more used by {name}", gid=f"bars:{name}")
+    axes.axvline(0, color=INK, linewidth=0.8, gid="zero-line")
+    axes.set_yticks(y, list(shown["term"].astype(str)))
+    axes.set_ylim(-0.7, max(len(shown), 1) - 0.3)
+    axes.xaxis.grid(True)
+    axes.set_axisbelow(True)
+
+
+def keyness_panels(keyness: pd.DataFrame, *, question: str, group_var: str, measure: str = "z", top: int = 8,
+                   text: ChartText | None = None) -> Any:
+    """One diverging-bar panel per comparison of ``group_var`` (each group against its reference)."""
+    _require(keyness, ["question", "group_var", "group", "reference", "term"], "keyness.csv")
+    rows = _choose(_choose(keyness, "question", question, "keyness.csv"), "group_var", group_var, "keyness.csv")
+    pairs = list(dict.fromkeys(zip(rows["group"].astype(str), rows["reference"].astype(str), strict=True)))
+    n_columns = min(2, len(pairs))
+    n_rows = int(np.ceil(len(pairs) / n_columns))
     with chart_style():
-        figure, axes = new_figure(len(shown), width=7.5, row_height=0.22)
-        positive = shown["value"].to_numpy() > 0
-        for chosen, colour, name in ((positive, category_colour(0), group),
-                                     (~positive, category_colour(1), reference_name)):
-            axes.barh(y[chosen], shown["value"].to_numpy()[chosen], color=colour, height=0.7,
-                      label=f"more used by {name}", gid=f"bars:{name}")
-        axes.axvline(0, color=INK, linewidth=0.8, gid="zero-line")
-        axes.set_yticks(y, list(shown["term"].astype(str)))
-        axes.set_ylim(-0.7, len(shown) - 0.3)
-        axes.xaxis.grid(True)
-        axes.set_axisbelow(True)
-        axes.set_xlabel(f"{MEASURE_NAMES.get(measure, measure)}; ← {reference_name} · {group} →")
-        axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8).set_gid("legend")
-        frame_figure(figure, text or ChartText(f"Words and phrases that set {group} apart from {reference_name}",
-                                               question))
-        figure.subplots_adjust(left=0.27, right=0.74)
+        from matplotlib.figure import Figure
+
+        figure = Figure(figsize=(4.2 * n_columns + 0.4, n_rows * (0.2 * 2 * top + 0.9) + 1.8), dpi=100)
+        grid = figure.subplots(n_rows, n_columns, squeeze=False)
+        for index, (group, reference) in enumerate(pairs):
+            axes = grid[index // n_columns][index % n_columns]
+            side = rows[(rows["group"].astype(str) == group) & (rows["reference"].astype(str) == reference)]
+            other = "the rest" if reference == "(rest)" else reference
+            _draw_keyness_bars(axes, side, measure, top, (group, other))
+            axes.set_title(f"{group} (blue) vs {other} (orange)", loc="left", fontsize=8, color=INK)
+            axes.tick_params(axis="y", labelsize=7)
+            axes.tick_params(axis="x", labelsize=6)
+        for index in range(len(pairs), n_rows * n_columns):
+            grid[index // n_columns][index % n_columns].set_visible(False)
+        frame = text or ChartText(f"Words and phrases that set each {group_var} group apart", question)
+        frame_figure(figure, frame)
+        figure.supxlabel(MEASURE_NAMES.get(measure, measure), fontsize=8, y=0.9 / figure.get_figheight())
+        figure.subplots_adjust(left=0.2, right=0.97, wspace=0.95, hspace=0.45)
     return figure
 
 
