@@ -27,6 +27,8 @@ _LAZY_COMMANDS = {
     "suggest": "textkit.cli.discover:suggest_command",
     "review": "textkit.cli.review:review_command",
     "sample": "textkit.cli.review:sample_command",
+    "charts": "textkit.cli.present:charts_command",
+    "quotes": "textkit.cli.present:quotes_command",
 }
 
 
