@@ -14,7 +14,7 @@ from textkit.stats.design import SurveyDesign
 from textkit.stats.estimate import (
     ALL,
     COMPARISON_COLUMNS,
-    NCHS_LIKE,
+    BASE_WIDTH_RULE,
     PREVALENCE_COLUMNS,
     REST,
     ReliabilityRule,
@@ -309,7 +309,7 @@ def test_reliability_rule_thresholds():
     # RSE on the smaller share: 0.02 / 0.05 = 40% for both 0.05 and 0.95
     assert list(flags) == ["suppress", "ok", "caution", "caution"]
     # NCHS 2017 style: a 0.35-wide interval is suppressed; relative width 0.08/0.05 > 130% too
-    nchs = NCHS_LIKE.flags([500, 500], [0.5, 0.05], [0.01, 0.01], [0.3, 0.02], [0.65, 0.1], [50, 50],
+    nchs = BASE_WIDTH_RULE.flags([500, 500], [0.5, 0.05], [0.01, 0.01], [0.3, 0.02], [0.65, 0.1], [50, 50],
                            [500, 500])
     assert list(nchs) == ["suppress", "suppress"]
 
