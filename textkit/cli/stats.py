@@ -129,7 +129,8 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
     from ..errors import AnalysisError
     from ..io.output import parquet_writer, write_outputs
     from ..stats.design import SurveyDesign
-    from ..stats.estimate import DEFAULT_METHOD, analyse, drop_missing_wave
+    from ..stats.estimate import DEFAULT_METHOD, analyse
+    from ..stats.estimate import drop_missing_wave as without_missing_wave
 
     rule = _rule(rule_name, min_base, caution_rse)
     try:
@@ -144,7 +145,7 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
     net_map = {name: members for name, members in nets.items() if not themes or name in chosen}
     source = str(record.get("coded", {}).get("path", coded_or_config))
     id_column = "response_id" if "response_id" in coded.columns else roles.get("id")
-    coded, dropped = drop_missing_wave(coded, roles.get("wave"), id_column or "response_id",
+    coded, dropped = without_missing_wave(coded, roles.get("wave"), id_column or "response_id",
                                        drop=drop_missing_wave)
     design = SurveyDesign.from_roles(coded, roles, id=id_column, source=source)
     groups = list(by) if by else list(roles.get("groups") or [])
