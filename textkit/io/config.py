@@ -19,6 +19,7 @@ Example::
     lexicon: ../lexicons/visitor_experience.yaml
     seed: 20261202
     non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
+    corrections: corrections.csv     # optional: hand corrections applied after coding
 
 Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
 index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
@@ -70,6 +71,7 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
     "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers", "nets",
+    "corrections",
 )
 #: Former names of keys -> their names now (refused with a hint).
 _RENAMED_KEYS = {"single_psu": "one_cluster_stratum (values refuse, centre, merge)",
@@ -140,6 +142,9 @@ class SurveyConfig:
         estimated like themes by ``textkit prevalence``.
     question_text : dict of str to str
         The wording of questions given as ``{column: ..., text: ...}``.
+    corrections : Path or None
+        A researcher's corrections (CSV, or a filled review workbook), applied after
+        automated coding on every run; resolved against the config's folder.
     """
 
     path: Path | None
@@ -164,6 +169,7 @@ class SurveyConfig:
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
     nets: dict[str, tuple[str, ...]] = field(default_factory=dict)
     question_text: dict[str, str] = field(default_factory=dict)
+    corrections: Path | None = None
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
@@ -352,6 +358,7 @@ class _Validator:
         out["non_answers"] = self.non_answers(entries.get("non_answers"))
         out["nets"] = self.nets(entries.get("nets", _NULL))
         out["question_text"] = self.question_texts
+        out["corrections"] = self.path(entries.get("corrections", _NULL), "corrections", optional=True)
         return out
 
     def nets(self, item: _Item) -> dict[str, tuple[str, ...]]:
