@@ -65,7 +65,7 @@ def test_demo_job_writes_the_four_tables_and_a_manifest(demo_run):
     lexicon_ids = json.loads((out / "manifest.json").read_text())["themes"]
     assert len(lexicon_ids) >= 25
     expected = ["response_id", "question", "weight", "stratum", "psu", "wave", "market", "age_band",
-                "trip_purpose", "answered", *lexicon_ids, "n_themes", "uncoded"]
+                "trip_purpose", "site", "season", "answered", *lexicon_ids, "n_themes", "uncoded"]
     assert list(coded.columns) == expected
     assert len(coded) == 2 * coded["response_id"].nunique() >= 12_000
     assert set(coded["question"]) == {"low_point", "high_point"}

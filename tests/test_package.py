@@ -21,7 +21,7 @@ PUBLIC_NAMES = [
     "code_survey", "write_coded", "load_coded", "CodedSurvey",
     "compare_with_hand_codes", "agreement_table",
     "SurveyDesign",
-    "analyse", "prevalence", "compare_groups", "compare_waves", "group_tests", "ReliabilityRule", "NCHS_LIKE",
+    "analyse", "prevalence", "compare_groups", "compare_waves", "group_tests", "ReliabilityRule", "BASE_WIDTH_RULE",
     "keyness", "document_term_matrix",
 ]
 

@@ -39,6 +39,12 @@ class DomainTotals:
         Covariance of ``z_d`` with the weight totals ``s_e`` of the domains.
     ss : ndarray of shape (n_domains, n_domains), or (n_domains,) if diagonal
         Covariance of the weight totals.
+    count_yes : ndarray of shape (n_domains, n_themes)
+        Unweighted number of rows with each theme (the numerator).
+    scale : float, default 1.0
+        Every weight above was divided by this power of two, so that sums of
+        squared weights cannot overflow; shares and their variances do not depend
+        on it; weight totals are ``weight * scale``.
     """
 
     weight: np.ndarray
@@ -48,6 +54,8 @@ class DomainTotals:
     zz: np.ndarray
     zs: np.ndarray
     ss: np.ndarray
+    count_yes: np.ndarray | None = None
+    scale: float = 1.0
 
     @property
     def variance(self) -> np.ndarray:
@@ -130,7 +138,8 @@ def domain_totals(Y: Any, unit: np.ndarray, domain: np.ndarray, n_domains: int, 
     rows = np.flatnonzero(inside)
     d_rows = domain[rows].astype(np.int64)
     u_rows = unit[rows]
-    w_rows = design.weights[u_rows]
+    weight_unit = weight_scale(design.weights)
+    w_rows = design.weights[u_rows] / weight_unit
     psu_rows = design.psu[u_rows]
     k = Y.shape[1]
     cell_keys, cell_of_row = _compact(psu_rows * n_domains + d_rows, design.n_psus * n_domains)
@@ -148,6 +157,9 @@ def domain_totals(Y: Any, unit: np.ndarray, domain: np.ndarray, n_domains: int, 
     weight_sq = np.bincount(d_rows, weights=w_rows ** 2, minlength=n_domains)
     by_domain = sparse.csr_matrix((np.ones(m), (cell_domain, np.arange(m))), shape=(n_domains, m))
     yes = by_domain @ cell_yes
+    count_yes = sparse.csr_matrix((np.ones(rows.size), (d_rows, np.arange(rows.size))),
+                                  shape=(n_domains, rows.size)) @ y_rows
+    count_yes = count_yes.toarray() if sparse.issparse(count_yes) else np.asarray(count_yes, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         estimate = np.where(weight[:, None] > 0, yes / weight[:, None], np.nan)
         inverse = np.where(weight > 0, 1.0 / weight, 0.0)
@@ -178,7 +190,19 @@ def domain_totals(Y: Any, unit: np.ndarray, domain: np.ndarray, n_domains: int, 
         zs = np.ascontiguousarray(np.moveaxis(cube[:, :, k:2 * k], 2, 0))
         ss = cube[:, :, 2 * k]
     return DomainTotals(weight=weight, count=count, weight_sq=weight_sq, estimate=estimate,
-                        zz=zz, zs=zs, ss=ss)
+                        zz=zz, zs=zs, ss=ss, count_yes=count_yes, scale=weight_unit)
+
+
+def weight_scale(weights: np.ndarray) -> float:
+    """A power of two near the largest weight (1.0 when the weights are all 0 or tiny).
+
+    Dividing by a power of two is exact in floating point, so results are the
+    same bytes as without scaling whenever no overflow would occur.
+    """
+    largest = float(np.max(weights)) if weights.size else 0.0
+    if not np.isfinite(largest) or largest <= 1.0:
+        return 1.0
+    return float(2.0 ** np.floor(np.log2(largest)))
 
 
 def _linear_covariance(totals: DomainTotals, on_scores: np.ndarray, on_weights: np.ndarray) -> np.ndarray:
@@ -257,3 +281,5 @@ class TargetBlock:
     count: np.ndarray | None = None
     weight_sq: np.ndarray | None = None
     df: np.ndarray | None = None
+    count_yes: np.ndarray | None = None   # (n_targets, n_themes) unweighted respondents raising the theme
+    scopes: list[Any] = field(default_factory=list)   # wave labels of the targets ("(all)" = pooled)
