@@ -21,7 +21,7 @@ PUBLIC_NAMES = [
     "code_survey", "write_coded", "load_coded", "CodedSurvey",
     "compare_with_hand_codes", "agreement_table",
     "SurveyDesign",
-    "analyse", "prevalence", "compare_groups", "compare_waves", "group_tests", "ReliabilityRule", "BASE_WIDTH_RULE",
+    "analyse", "prevalence", "compare_groups", "compare_waves", "group_tests", "ReliabilityRule", "NCHS_LIKE",
     "keyness", "document_term_matrix",
 ]
 
@@ -68,3 +68,8 @@ def test_import_textkit_and_help_stay_light():
              "print(','.join(heavy))")
     out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True).stdout.strip()
     assert out == ""
+
+
+def test_the_renamed_default_rule_keeps_its_old_name():
+    assert textkit.NCHS_LIKE is textkit.BASE_WIDTH_RULE
+

@@ -31,7 +31,7 @@ _EXPORTS = {
     "SurveyDesign": "stats.design",
     "analyse": "stats.estimate", "prevalence": "stats.estimate", "compare_groups": "stats.estimate",
     "compare_waves": "stats.estimate", "group_tests": "stats.estimate", "ReliabilityRule": "stats.estimate",
-    "BASE_WIDTH_RULE": "stats.estimate",
+    "BASE_WIDTH_RULE": "stats.estimate", "NCHS_LIKE": "stats.rules",
     "keyness": "discover.keyness", "document_term_matrix": "text.ngrams",
 }
 

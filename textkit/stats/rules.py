@@ -164,3 +164,6 @@ RSE_16_33_RULE = ReliabilityRule(
 RULES: dict[str, ReliabilityRule] = {rule.name: rule for rule in (BASE_WIDTH_RULE, RSE_25_50_RULE,
                                                                    RSE_16_33_RULE)}
 DEFAULT_RULE = BASE_WIDTH_RULE
+#: The default rule's name before the rules got descriptive names; kept so that code written
+#: against textkit 0.1 still imports.
+NCHS_LIKE = BASE_WIDTH_RULE
