@@ -25,6 +25,7 @@ _LAZY_COMMANDS = {
     "prevalence": "textkit.cli.stats:prevalence_command",
     "keyness": "textkit.cli.discover:keyness_command",
     "suggest": "textkit.cli.discover:suggest_command",
+    "topics": "textkit.cli.discover:topics_command",
 }
 
 

@@ -412,6 +412,17 @@ class TopicModel(TransformerMixin, BaseEstimator):
         tfidf = self._tfidf(distinct)
         self._check_capacity(where)
         binary = (distinct > 0).astype(np.float64)
+        import warnings
+
+        from sklearn.exceptions import ConvergenceWarning
+
+        with warnings.catch_warnings():  # max_iter caps a slow fit; the loadings are still usable
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            self._fit_topics(tfidf, binary)
+        self.coherence_ = topic_coherence(binary, self.top_term_indices())
+        return self
+
+    def _fit_topics(self, tfidf: sp.csr_matrix, binary: sp.csr_matrix) -> None:
         scan = self._scan(tfidf, binary) if self.n_topics is None else None
         if scan is not None:
             self.k_selection_, self.n_topics_ = scan.table, scan.chosen
@@ -426,8 +437,6 @@ class TopicModel(TransformerMixin, BaseEstimator):
         if scan is not None:  # the final model is the scan's reference when the scan used every answer
             match, _ = match_topics(self._top_lists(self.components_), scan.reference)
             self.topic_stability_ = scan.per_topic[match]
-        self.coherence_ = topic_coherence(binary, self.top_term_indices())
-        return self
 
     def _check_settings(self) -> None:
         low, high = (int(v) for v in self.k_range)
@@ -550,7 +559,13 @@ class TopicModel(TransformerMixin, BaseEstimator):
         loadings = np.zeros((counts.shape[0], self.n_topics_))
         rows = np.flatnonzero(np.diff(counts.indptr) > 0)
         if len(rows):
-            loadings[rows] = self._nmf_model.transform(self._tfidf(counts[rows]))
+            import warnings
+
+            from sklearn.exceptions import ConvergenceWarning
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", ConvergenceWarning)
+                loadings[rows] = self._nmf_model.transform(self._tfidf(counts[rows]))
         return loadings
 
     def codes(self, loadings: np.ndarray) -> np.ndarray:
