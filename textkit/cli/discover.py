@@ -216,10 +216,12 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
 @click.option("--min-respondents", type=click.IntRange(min=1), default=5, show_default=True,
               help="Answers a term needs.")
 @click.option("--unweighted", is_flag=True, help="Ignore the survey weights.")
+@click.option("--topics", "with_topics", is_flag=True,
+              help="Also add NMF topics (default scope) to the draft as candidate themes.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
 def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: tuple[str, ...],
                     max_terms: int, max_new_terms: int, min_respondents: int, unweighted: bool,
-                    quiet: bool) -> None:
+                    with_topics: bool, quiet: bool) -> None:
     """Draft lexicon additions from keyness of coded vs uncoded answers of CONFIG.
 
     Writes a commented YAML draft for review; the lexicon itself is never changed.
@@ -258,6 +260,11 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by:
                           max_new_terms=max_new_terms, min_respondents=min_respondents)
     labels = {theme.id: theme.label for theme in survey.lexicon.themes}
     draft = render_suggestions_yaml(table, labels=labels, source=str(config))
+    if with_topics:
+        from ..discover.topic_tables import render_topic_drafts
+        from ..pipeline import find_survey_topics
+
+        draft += "\n" + "\n".join(render_topic_drafts(find_survey_topics(survey, chosen))) + "\n"
     manifest = {"command": "suggest", "config": survey.manifest.get("config"),
                 "survey": survey.manifest.get("survey"), "lexicon": survey.manifest.get("lexicon"),
                 "settings": {"questions": chosen, "emerging_by": wave, "max_terms": max_terms,
