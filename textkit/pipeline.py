@@ -351,3 +351,72 @@ def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
         for column in numeric:
             frame[column] = pd.to_numeric(frame[column], errors="coerce")
     return frame, manifest, data_path
+
+
+# --------------------------------------------------------------------------- topics
+
+def survey_text(survey: CodedSurvey, *, exclude_groups: bool = False):
+    """The :class:`textkit.discover.topic_tables.SurveyText` of a coded survey (for topic discovery)."""
+    from .discover.topic_tables import SurveyText
+
+    roles = survey.roles
+    groups = [c for c in dict.fromkeys([*roles.get("groups", []), roles.get("wave")]) if c]
+    evidence = survey.result.evidence
+    return SurveyText(
+        stream=survey.stream, texts=survey.texts.tolist(), response_ids=survey.coded["response_id"].to_numpy(),
+        questions=survey.coded["question"].to_numpy(), answered=survey.coded["answered"].to_numpy(dtype=bool),
+        theme_matrix=survey.theme_matrix, themes=survey.themes,
+        evidence_rows=evidence["document"].to_numpy(), evidence_starts=evidence["start"].to_numpy(),
+        evidence_ends=evidence["end"].to_numpy(),
+        weights=survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None,
+        groups=None if exclude_groups else survey.coded[groups])
+
+
+def find_survey_topics(survey: CodedSurvey, questions: list[str] | None = None, *, scope: str = "unexplained",
+                       theme: str | None = None, exclude=None, **model_options):
+    """Topics of a coded survey (:func:`textkit.discover.topic_tables.find_topics`), seeded by its config."""
+    from .discover.topic_tables import find_topics
+
+    model_options.setdefault("random_state", int(survey.config.seed or 0))
+    model_options.setdefault("language", survey.lexicon.language)
+    return find_topics(survey_text(survey), list(questions or survey.config.questions), scope=scope,
+                       theme=theme, exclude=exclude, **model_options)
+
+
+def with_topics(survey: CodedSurvey, topics) -> CodedSurvey:
+    """The survey with topic 0/1 columns beside the theme columns, listed as codes of kind ``topic``.
+
+    ``coded`` gains ``topic_01`` ... after the theme columns; ``coverage`` gains
+    a ``kind`` column (``theme``/``topic``) and one row per topic; the manifest
+    lists the topics in ``themes`` (so ``textkit prevalence`` estimates them
+    exactly as themes) and describes every code in ``codes`` (id, kind, label,
+    question).
+    """
+    import dataclasses
+
+    coded = survey.coded
+    dense = topics.codes.toarray().astype(np.int8)
+    at = coded.columns.get_loc("n_themes")
+    topic_frame = pd.DataFrame(dense, columns=topics.topic_ids, index=coded.index)
+    coded = pd.concat([coded.iloc[:, :at], topic_frame, coded.iloc[:, at:]], axis=1)
+    coverage = survey.coverage.assign(kind="theme")
+    weights = coded[survey.config.weight].to_numpy(dtype=float) if survey.config.weight else np.ones(len(coded))
+    rows = []
+    for index, (topic, question) in enumerate(zip(topics.topic_ids, topics.topic_questions, strict=True)):
+        inside = (coded["question"] == question).to_numpy() & coded["answered"].to_numpy(dtype=bool)
+        values, w = dense[inside, index].astype(float), weights[inside]
+        rows.append({"question": question, "theme": topic, "label": topics.labels[index], "parent": "",
+                     "responses_coded": int(values.sum()), "answered": int(inside.sum()),
+                     "share": values.mean() if inside.any() else np.nan,
+                     "weighted_share": (w @ values) / w.sum() if w.sum() > 0 else np.nan, "kind": "topic"})
+    coverage = pd.concat([coverage, pd.DataFrame(rows, columns=coverage.columns)], ignore_index=True)
+    manifest = dict(survey.manifest)
+    manifest["themes"] = [*survey.themes, *topics.topic_ids]
+    manifest["codes"] = ([{"id": t.id, "kind": "theme", "label": t.label, "question": None}
+                          for t in survey.lexicon.themes]
+                         + [{"id": t, "kind": "topic", "label": label, "question": q}
+                            for t, label, q in zip(topics.topic_ids, topics.labels, topics.topic_questions,
+                                                   strict=True)])
+    manifest["topics"] = {"scope": topics.scope, "counts": topics.counts,
+                          "k": {q: m.n_topics_ for q, m in topics.models.items()}}
+    return dataclasses.replace(survey, coded=coded, coverage=coverage, manifest=manifest)

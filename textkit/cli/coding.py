@@ -19,13 +19,18 @@ from .review import lexicon_diff_command
               help="Folder for coded.csv, coded.parquet, evidence.csv, coverage.csv, manifest.json.")
 @click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
               help="Use this lexicon instead of the one the config names.")
+@click.option("--topics", "topics", is_flag=True,
+              help="Also add NMF topic columns (topic_01 ...) found in what the lexicon leaves unexplained.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: bool) -> None:
+def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics: bool, quiet: bool) -> None:
     """Code every answer of the survey described by CONFIG with its theme lexicon."""
-    from ..pipeline import code_survey, write_coded
+    from ..pipeline import code_survey, find_survey_topics, with_topics, write_coded
 
-    with steps(6, quiet) as progress:
+    with steps(7 if topics else 6, quiet) as progress:
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
+        if topics:
+            progress("finding topics")
+            survey = with_topics(survey, find_survey_topics(survey))
         progress("writing")
         paths = write_coded(survey, out_dir)
     if quiet:

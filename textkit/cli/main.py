@@ -29,6 +29,7 @@ _LAZY_COMMANDS = {
     "sample": "textkit.cli.review:sample_command",
     "charts": "textkit.cli.present:charts_command",
     "quotes": "textkit.cli.present:quotes_command",
+    "topics": "textkit.cli.discover:topics_command",
 }
 
 
