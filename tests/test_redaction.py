@@ -59,8 +59,7 @@ def planted_survey(tmp_path_factory):
     config = (ROOT / "demo_comments" / "survey.yaml").read_text(encoding="utf-8")
     config = config.replace("../lexicons/", str(ROOT / "lexicons") + "/")
     (folder / "survey.yaml").write_text(config + "redact_names: [Bramwell]\n", encoding="utf-8")
-    hand = frame.loc[rows, ["response_id", "low_point"]].rename(columns={"low_point": "text"})
-    hand["themes"] = "staff"
+    hand = frame.loc[rows, ["response_id"]].assign(question="low_point", themes="staff")
     hand.to_csv(folder / "hand.csv", index=False)
     return folder
 
@@ -72,8 +71,8 @@ def test_no_output_of_any_command_shows_a_planted_detail(planted_survey, capsys)
     commands = {
         "code": ["code", config, "--out", str(folder / "out-code"), "--quiet"],
         "check": ["lexicon", "check", lexicon, "--survey", config, "--out", str(folder / "out-check"), "--quiet"],
-        "agreement": ["agreement", str(folder / "hand.csv"), "--lexicon", lexicon, "--out",
-                      str(folder / "out-agreement"), "--redact-name", "Bramwell", "--quiet"],
+        "agreement": ["agreement", str(folder / "hand.csv"), "--survey", config, "--out",
+                      str(folder / "out-agreement"), "--resamples", "0", "--quiet"],
         "prevalence": ["prevalence", str(folder / "out-code"), "--out", str(folder / "out-prevalence"), "--quiet"],
         "keyness": ["keyness", config, "--out", str(folder / "out-keyness"), "--quiet"],
         "suggest": ["suggest", config, "--out", str(folder / "out-suggest"), "--quiet"],

@@ -64,6 +64,11 @@ class CodedSurvey:
         Things the user should know (encoding fallbacks, zero weights...).
     manifest : dict
         Inputs' hashes and settings that reproduce the run.
+    extra_tables : dict of str to DataFrame
+        More files for the output folder (``corrections_applied.csv`` ...).
+
+    With a corrections file, ``coded`` also has ``source`` (``lexicon`` or
+    ``correction``) and ``corrected_themes`` (the row's corrected cells).
 
     ``theme_matrix``, ``stream``, ``themes`` and ``roles`` are read from
     ``result`` and ``config``.
@@ -78,6 +83,14 @@ class CodedSurvey:
     result: CodingResult
     notes: list[str] = field(default_factory=list)
     manifest: dict = field(default_factory=dict)
+    extra_tables: dict = field(default_factory=dict)
+
+    def text_lookup(self, keys: pd.DataFrame) -> list[str | None]:
+        """The answer text of each (``response_id``, ``question``) row of ``keys`` (None when absent)."""
+        index = pd.MultiIndex.from_arrays([self.coded["response_id"].astype(str), self.coded["question"]])
+        rows = index.get_indexer(pd.MultiIndex.from_arrays([keys["response_id"].astype(str), keys["question"]]))
+        texts = self.texts.to_numpy(dtype=object)
+        return [texts[r] if r >= 0 else None for r in rows.tolist()]
 
     @property
     def theme_matrix(self) -> sp.csr_matrix:
@@ -113,7 +126,7 @@ def _no_progress(step: str) -> None:
 
 
 def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
-                progress: Callable[[str], None] | None = None) -> CodedSurvey:
+                progress: Callable[[str], None] | None = None, apply_corrections: bool = True) -> CodedSurvey:
     """Read a survey and code every answer of every open question.
 
     Parameters
@@ -124,6 +137,9 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
         Overrides the config's ``lexicon``.
     progress : callable, optional
         Called with the name of each step as it starts (the CLI draws a bar).
+    apply_corrections : bool, default True
+        Apply the corrections file the config names (see :func:`apply_configured_corrections`);
+        False gives the lexicon's codes alone (to score or compare lexicons).
 
     Raises
     ------
@@ -170,6 +186,9 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
 
     step("assembling tables")
     coded = _coded_table(frame, config, questions, answered, result)
+    corrections = None
+    if apply_corrections and config.corrections is not None:
+        coded, corrections = apply_configured_corrections(coded, result, lex, config)
     evidence = _evidence_table(coded, result)
     coverage = _coverage_table(coded, lex, config, result)
     manifest = {
@@ -185,9 +204,56 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
                    "evidence": len(evidence), "dropped_matches": result.dropped},
         "notes": list(data.notes),
     }
+    notes = list(data.notes)
+    if corrections is not None:
+        manifest["corrections"] = corrections["manifest"]
+        notes += corrections["notes"]
     return CodedSurvey(coded=coded, texts=pd.Series(raw_texts, name="text"), evidence=evidence,
                        coverage=coverage, lexicon=lex, config=config, result=result,
-                       notes=list(data.notes), manifest=manifest)
+                       notes=notes, manifest=manifest,
+                       extra_tables=corrections["tables"] if corrections is not None else {})
+
+
+def apply_configured_corrections(coded: pd.DataFrame, result: CodingResult, lexicon: Lexicon,
+                                 config: SurveyConfig) -> tuple[pd.DataFrame, dict]:
+    """Read the config's corrections file and apply it to ``coded`` (after automated coding).
+
+    Returns the corrected table and a dict with ``manifest`` (the file's hash, how many
+    corrections were applied and how many codes they changed, those that fit no
+    answer), ``notes`` and ``tables`` (``corrections_applied.csv`` and, when some fit no
+    answer, ``corrections_unmatched.csv``).
+    """
+    from .coding.corrections import apply_corrections, check_corrections, corrections_from_frame
+    from .io.workbook import read_coding_file, workbook_sheet_names
+
+    path = config.corrections
+    if not path.exists():
+        raise InputError("corrections file not found (named by 'corrections' in the survey config)",
+                         source=path)
+    if path.suffix.lower() in (".xlsx", ".xlsm") and {"review", "corrections"} & set(workbook_sheet_names(path)):
+        parts = read_coding_file(path, optional_sheets=("review", "corrections"))
+    else:
+        parts = read_coding_file(path)
+    frames = [corrections_from_frame(p.frame, p.place, review_sheet=p.sheet == "review") for p in parts]
+    table = pd.concat(frames, ignore_index=True) if frames else corrections_from_frame(
+        pd.DataFrame(columns=["response_id", "question", "theme", "code"]), str(path))
+    check_corrections(table, lexicon.ids, list(config.questions))
+    outcome = apply_corrections(coded, result.direct, lexicon, table)
+    notes = [f"corrections: {len(outcome.applied)} cells set by {path.name}, {outcome.changed} codes changed"]
+    if len(outcome.unmatched):
+        ids = ", ".join(outcome.unmatched["response_id"].head(5))
+        notes.append(f"corrections: {len(outcome.unmatched)} fit no answered response ({ids}...); listed in "
+                     "corrections_unmatched.csv")
+    if outcome.undecided:
+        notes.append(f"corrections: {outcome.undecided} rows with a blank code left out (blank = not decided)")
+    manifest = {"path": str(path), "sha256": file_sha256(path), "rows": len(table),
+                "cells": len(outcome.applied), "codes_changed": outcome.changed,
+                "unmatched": len(outcome.unmatched), "undecided": outcome.undecided,
+                "superseded": outcome.superseded}
+    tables = {"corrections_applied.csv": outcome.applied}
+    if len(outcome.unmatched):
+        tables["corrections_unmatched.csv"] = outcome.unmatched
+    return outcome.coded, {"manifest": manifest, "notes": notes, "tables": tables}
 
 
 def _coded_table(frame: pd.DataFrame, config: SurveyConfig, questions: list[str], answered: np.ndarray,
@@ -291,6 +357,7 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
         "coded.parquet": parquet_writer(survey.coded),
         "evidence.csv": csv_writer(survey.evidence),
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
+        **{name: csv_writer(table) for name, table in survey.extra_tables.items()},
     }
     return write_outputs(out_dir, files, survey.manifest)
 
@@ -336,3 +403,72 @@ def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
         for column in numeric:
             frame[column] = pd.to_numeric(frame[column], errors="coerce")
     return frame, manifest, data_path
+
+
+# --------------------------------------------------------------------------- topics
+
+def survey_text(survey: CodedSurvey, *, exclude_groups: bool = False):
+    """The :class:`textkit.discover.topic_tables.SurveyText` of a coded survey (for topic discovery)."""
+    from .discover.topic_tables import SurveyText
+
+    roles = survey.roles
+    groups = [c for c in dict.fromkeys([*roles.get("groups", []), roles.get("wave")]) if c]
+    evidence = survey.result.evidence
+    return SurveyText(
+        stream=survey.stream, texts=survey.texts.tolist(), response_ids=survey.coded["response_id"].to_numpy(),
+        questions=survey.coded["question"].to_numpy(), answered=survey.coded["answered"].to_numpy(dtype=bool),
+        theme_matrix=survey.theme_matrix, themes=survey.themes,
+        evidence_rows=evidence["document"].to_numpy(), evidence_starts=evidence["start"].to_numpy(),
+        evidence_ends=evidence["end"].to_numpy(),
+        weights=survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None,
+        groups=None if exclude_groups else survey.coded[groups])
+
+
+def find_survey_topics(survey: CodedSurvey, questions: list[str] | None = None, *, scope: str = "unexplained",
+                       theme: str | None = None, exclude=None, **model_options):
+    """Topics of a coded survey (:func:`textkit.discover.topic_tables.find_topics`), seeded by its config."""
+    from .discover.topic_tables import find_topics
+
+    model_options.setdefault("random_state", int(survey.config.seed or 0))
+    model_options.setdefault("language", survey.lexicon.language)
+    return find_topics(survey_text(survey), list(questions or survey.config.questions), scope=scope,
+                       theme=theme, exclude=exclude, **model_options)
+
+
+def with_topics(survey: CodedSurvey, topics) -> CodedSurvey:
+    """The survey with topic 0/1 columns beside the theme columns, listed as codes of kind ``topic``.
+
+    ``coded`` gains ``topic_01`` ... after the theme columns; ``coverage`` gains
+    a ``kind`` column (``theme``/``topic``) and one row per topic; the manifest
+    lists the topics in ``themes`` (so ``textkit prevalence`` estimates them
+    exactly as themes) and describes every code in ``codes`` (id, kind, label,
+    question).
+    """
+    import dataclasses
+
+    coded = survey.coded
+    dense = topics.codes.toarray().astype(np.int8)
+    at = coded.columns.get_loc("n_themes")
+    topic_frame = pd.DataFrame(dense, columns=topics.topic_ids, index=coded.index)
+    coded = pd.concat([coded.iloc[:, :at], topic_frame, coded.iloc[:, at:]], axis=1)
+    coverage = survey.coverage.assign(kind="theme")
+    weights = coded[survey.config.weight].to_numpy(dtype=float) if survey.config.weight else np.ones(len(coded))
+    rows = []
+    for index, (topic, question) in enumerate(zip(topics.topic_ids, topics.topic_questions, strict=True)):
+        inside = (coded["question"] == question).to_numpy() & coded["answered"].to_numpy(dtype=bool)
+        values, w = dense[inside, index].astype(float), weights[inside]
+        rows.append({"question": question, "theme": topic, "label": topics.labels[index], "parent": "",
+                     "responses_coded": int(values.sum()), "answered": int(inside.sum()),
+                     "share": values.mean() if inside.any() else np.nan,
+                     "weighted_share": (w @ values) / w.sum() if w.sum() > 0 else np.nan, "kind": "topic"})
+    coverage = pd.concat([coverage, pd.DataFrame(rows, columns=coverage.columns)], ignore_index=True)
+    manifest = dict(survey.manifest)
+    manifest["themes"] = [*survey.themes, *topics.topic_ids]
+    manifest["codes"] = ([{"id": t.id, "kind": "theme", "label": t.label, "question": None}
+                          for t in survey.lexicon.themes]
+                         + [{"id": t, "kind": "topic", "label": label, "question": q}
+                            for t, label, q in zip(topics.topic_ids, topics.labels, topics.topic_questions,
+                                                   strict=True)])
+    manifest["topics"] = {"scope": topics.scope, "counts": topics.counts,
+                          "k": {q: m.n_topics_ for q, m in topics.models.items()}}
+    return dataclasses.replace(survey, coded=coded, coverage=coverage, manifest=manifest)
