@@ -65,14 +65,17 @@ def test_demo_job_writes_the_four_tables_and_a_manifest(demo_run):
     lexicon_ids = json.loads((out / "manifest.json").read_text())["themes"]
     assert len(lexicon_ids) >= 25
     expected = ["response_id", "question", "weight", "stratum", "psu", "wave", "market", "age_band",
-                "trip_purpose", "site", "season", "answered", *lexicon_ids, "n_themes", "uncoded"]
+                "trip_purpose", "site", "season", "answered", *lexicon_ids, "n_themes", "nothing_to_report",
+                "uncoded"]
     assert list(coded.columns) == expected
     assert len(coded) == 2 * coded["response_id"].nunique() >= 12_000
     assert set(coded["question"]) == {"low_point", "high_point"}
     assert coded[lexicon_ids].isin([0, 1]).all().all()
     # a child's code implies its parent's
     assert (coded["toilets"] <= coded["facilities"]).all() and (coded["parking"] <= coded["transport"]).all()
-    assert ((coded["uncoded"] == 1) == ((coded["answered"] == 1) & (coded["n_themes"] == 0))).all()
+    assert ((coded["uncoded"] == 1) == ((coded["answered"] == 1) & (coded["n_themes"] == 0)
+                                        & (coded["nothing_to_report"] == 0))).all()
+    assert ((coded["nothing_to_report"] == 1) <= ((coded["answered"] == 1) & (coded["n_themes"] == 0))).all()
     parquet = pd.read_parquet(out / "coded.parquet")
     assert list(parquet.columns) == expected and len(parquet) == len(coded)
     evidence = pd.read_csv(out / "evidence.csv", dtype={"response_id": str})

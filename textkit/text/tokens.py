@@ -42,6 +42,8 @@ from importlib import resources
 
 import numpy as np
 
+from .inflect import snowball_stemmer  # noqa: F401  (its home is text.inflect; kept importable here)
+
 #: Separator placed between documents in the joined corpus; never a token.
 DOCUMENT_SEPARATOR = "\x1e"
 
