@@ -447,7 +447,8 @@ class ThemeCoder(BaseEstimator):
         else:
             pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._key_cache,
                                                self.lexicon.language, self.lexicon.keep_accents)
-        matches, dropped = self._counted_matches(stream, pattern_matrix)
+        nothing = self._nothing_to_report(stream)
+        matches, dropped = self._counted_matches(stream, pattern_matrix, nothing)
         start, term, theme, length, negated = matches
         document = (np.searchsorted(stream.doc_offsets, start, side="right") - 1).astype(np.int64)
         shape = (stream.n_documents, len(self.lexicon.themes))
@@ -466,7 +467,7 @@ class ThemeCoder(BaseEstimator):
                             direct=direct, evidence=table, term_hits=self._term_hits(term),
                             dropped=dropped, stream=stream,
                             negated=(negated_hits @ compiled.rollup).tocsr().astype(np.int32),
-                            nothing_to_report=self._nothing_to_report(stream))
+                            nothing_to_report=nothing)
 
     def _nothing_to_report(self, stream: TokenStream) -> np.ndarray:
         phrases, fillers = builtin_phrases(self.lexicon.language)
@@ -474,7 +475,7 @@ class ThemeCoder(BaseEstimator):
             phrases = self.lexicon.nothing_to_report
         return nothing_to_report_mask(stream, phrases, fillers)
 
-    def _counted_matches(self, stream: TokenStream, pattern_matrix: sp.csr_matrix):
+    def _counted_matches(self, stream: TokenStream, pattern_matrix: sp.csr_matrix, nothing: np.ndarray):
         """Matches that count: ``(start, term, theme, length, negated)`` arrays and the dropped counts.
 
         Exclusions veto overlapping matches of their theme; negated matches are
@@ -496,7 +497,7 @@ class ThemeCoder(BaseEstimator):
         excluded = _covers(ex_theme, ex_start, ex_length, n, theme, start, length) & ~negated
         theme = np.where(in_scope, compiled.theme_negated_target[theme], theme)  # negated: <theme id>
         document = np.searchsorted(stream.doc_offsets, start, side="right") - 1
-        nothing = self._nothing_to_report(stream)[document] & ~(negated | excluded)
+        nothing = nothing[document] & ~(negated | excluded)
         contained = np.zeros(len(start), dtype=bool)
         alive = ~(negated | excluded | nothing)
         if alive.any():
