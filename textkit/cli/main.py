@@ -29,6 +29,8 @@ _LAZY_COMMANDS = {
     "sample": "textkit.cli.review:sample_command",
     "charts": "textkit.cli.present:charts_command",
     "quotes": "textkit.cli.present:quotes_command",
+    "train": "textkit.cli.learn:train_command",
+    "mend": "textkit.cli.learn:mend_command",
 }
 
 

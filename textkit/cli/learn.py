@@ -1,0 +1,74 @@
+"""Command line for learning from hand codes: ``textkit train`` and ``textkit mend``.
+
+Only click is imported here; scikit-learn and the coding modules load inside the commands.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from .main import steps
+
+
+def _hand_options(command):
+    command = click.option("--sheet", default=None, help="Workbook sheet holding the codes (default: the first).")(
+        command)
+    command = click.option("--codes-column", default="themes", show_default=True,
+                           help="Long form: column holding the hand codes (theme ids separated by ';').")(command)
+    command = click.option("--leave-out", "leave_out", multiple=True, metavar="THEME",
+                           help="Ignore hand codes of this theme the lexicon lacks (repeatable).")(command)
+    return command
+
+
+@click.command("train")
+@click.argument("hand_codes", type=click.Path(path_type=Path))
+@click.option("--survey", "config", required=True, type=click.Path(path_type=Path),
+              help="Survey config: the answers' text and the lexicon come from it.")
+@click.option("--out", "out_path", required=True, type=click.Path(path_type=Path),
+              help="The coder file to write (e.g. coder.joblib); its cross-validated figures go beside it "
+                   "as <name>.cv.csv.")
+@_hand_options
+@click.option("--kind", type=click.Choice(["logistic", "svm"]), default="logistic", show_default=True,
+              help="Linear model per theme: logistic regression or linear SVM (balanced class weights).")
+@click.option("--min-positive", default=10, show_default=True, type=click.IntRange(2, None),
+              help="Fewest positive hand codes a theme needs for a model (else it keeps the lexicon).")
+@click.option("--folds", default=5, show_default=True, type=click.IntRange(2, 20),
+              help="Cross-validation folds for the reported figures and the combined choice.")
+@click.option("--seed", default=None, type=int, help="Seed of the fold splits (default: the config's seed).")
+@click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
+def train_command(hand_codes: Path, config: Path, out_path: Path, sheet: str | None, codes_column: str,
+                  leave_out: tuple[str, ...], kind: str, min_positive: int, folds: int, seed: int | None,
+                  quiet: bool) -> None:
+    """Train a coder on HAND_CODES (one linear model per theme) and save it with its training manifest.
+
+    HAND_CODES is a CSV or workbook: the wide sheet 'textkit sample' writes (one 0/1
+    column per theme, blank = not coded) or the long form (theme ids joined by ';').
+    Themes with fewer positive hand codes than --min-positive keep the lexicon.
+    """
+    from ..io.output import csv_writer, write_outputs
+    from ..pipeline import coder_writer, train_coder
+
+    with steps(6, quiet) as progress:
+        trained = train_coder(config, hand_codes, sheet=sheet, codes_column=codes_column, leave_out=leave_out,
+                              seed=seed, progress=progress, kind=kind, min_positive=min_positive, folds=folds)
+        progress("writing")
+        report_name = f"{out_path.stem}.cv.csv"
+        write_outputs(out_path.parent, {out_path.name: coder_writer(trained),
+                                        report_name: csv_writer(trained.report, float_format="%.4f")})
+    if quiet:
+        return
+    for note in trained.manifest["notes"]:
+        click.echo(f"note: {note}", err=True)
+    report = trained.report
+    modelled = report[report["status"] == "model"]
+    click.echo(f"trained on {trained.manifest['hand_codes']['answers']} hand-coded answers: a model for "
+               f"{len(modelled)} of {len(report)} themes ({len(report) - len(modelled)} keep the lexicon)")
+    click.echo("  cross-validated F1      lexicon  model  union  combined uses")
+    for row in modelled.itertuples():
+        click.echo(f"  {row.theme:<22} {row.lexicon_f1:7.2f} {row.model_f1:6.2f} {row.union_f1:6.2f}  "
+                   f"{row.combined_choice}")
+    click.echo(f"wrote {out_path} and {out_path.parent / report_name}; code with "
+               f"'textkit code SURVEY.yaml --coder {out_path} --out DIR'")
+
