@@ -544,3 +544,75 @@ def _model_evidence(coder, learned, coded: pd.DataFrame, final: np.ndarray, answ
             "top_features": coder.top_features(learned.features, rows, theme)}))
     columns = ["response_id", "question", "theme", "score", "top_features"]
     return pd.concat(frames, ignore_index=True)[columns] if frames else pd.DataFrame(columns=columns)
+
+
+# --------------------------------------------------------------------------- prevalence and the coder's error
+
+#: Columns of the coder-corrected prevalence table.
+CODER_CORRECTED_COLUMNS = ["question", "theme", "group_var", "group", "wave", "n", "estimate", "se", "ci_low",
+                           "ci_high", "flag", "corrected_estimate", "corrected_se", "corrected_ci_low",
+                           "corrected_ci_high", "sensitivity", "specificity", "hand_positive", "hand_negative",
+                           "correction_note"]
+
+
+def coder_error_table(coded: pd.DataFrame, themes: list[str], hand_path: str | Path, lexicon: Lexicon, *,
+                      sheet: str | None = None, codes_column: str = "themes") -> pd.DataFrame:
+    """Per theme: the coded table's codes against hand codes of some of its answers.
+
+    Counts ``true_positive, false_negative, true_negative, false_positive`` over the hand-coded
+    answers that were answered (both questions pooled; several coders: their majority;
+    blank cells left out), with sensitivity and specificity.
+    """
+    from .coding.agreement import consensus
+    from .coding.handcodes import check_ids_in_survey, hand_codes_from_frame
+    from .io.workbook import read_coding_file
+
+    part = read_coding_file(hand_path, sheets=[sheet] if sheet else ())[0]
+    hand = hand_codes_from_frame(part.frame, lexicon, part.place, codes_column=codes_column)
+    check_ids_in_survey(hand, coded, part.place)
+    if len(hand.coders) > 1:
+        hand = consensus(hand)
+    index = pd.MultiIndex.from_arrays([coded["response_id"].astype(str), coded["question"].astype(str)])
+    rows = index.get_indexer(pd.MultiIndex.from_frame(hand.keys[["response_id", "question"]]))
+    answered = coded["answered"].to_numpy(dtype=bool)[rows]
+    records = []
+    for theme in themes:
+        if theme not in hand.themes:
+            continue
+        truth = hand.values[answered, hand.themes.index(theme)]
+        machine = coded[theme].to_numpy()[rows][answered]
+        known = np.isfinite(truth)
+        truth, machine = truth[known] == 1, machine[known] == 1
+        counts = {"true_positive": int((truth & machine).sum()), "false_negative": int((truth & ~machine).sum()),
+                  "true_negative": int((~truth & ~machine).sum()), "false_positive": int((~truth & machine).sum())}
+        records.append({"theme": theme, **counts})
+    table = pd.DataFrame(records, columns=["theme", "true_positive", "false_negative", "true_negative",
+                                           "false_positive"])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["sensitivity"] = table["true_positive"] / (table["true_positive"] + table["false_negative"])
+        table["specificity"] = table["true_negative"] / (table["true_negative"] + table["false_positive"])
+    return table
+
+
+def correct_prevalence_for_coder(prevalence_table: pd.DataFrame, error: pd.DataFrame, *,
+                                 confidence: float = 0.95) -> pd.DataFrame:
+    """Rogan-Gladen corrected prevalence beside each raw row (:data:`CODER_CORRECTED_COLUMNS`).
+
+    Every theme row of ``prevalence_table`` (nets are left out) with the theme's
+    sensitivity and specificity from ``error`` (:func:`coder_error_table`); the interval
+    carries the survey's variance (``se``) and the hand-coded sample's.
+    """
+    from .stats.misclassification import rogan_gladen
+
+    rows = prevalence_table[prevalence_table["theme"].isin(error["theme"])].reset_index(drop=True)
+    counts = error.set_index("theme").loc[rows["theme"]]
+    result = rogan_gladen(rows["estimate"].to_numpy(float), rows["se"].to_numpy(float) ** 2,
+                          counts["true_positive"], counts["false_negative"], counts["true_negative"],
+                          counts["false_positive"], confidence=confidence)
+    out = rows.assign(corrected_estimate=result.estimate, corrected_se=result.se, corrected_ci_low=result.ci_low,
+                      corrected_ci_high=result.ci_high, sensitivity=result.sensitivity,
+                      specificity=result.specificity,
+                      hand_positive=(counts["true_positive"] + counts["false_negative"]).to_numpy(),
+                      hand_negative=(counts["true_negative"] + counts["false_positive"]).to_numpy(),
+                      correction_note=result.reason)
+    return out[[c for c in CODER_CORRECTED_COLUMNS if c in out.columns]]

@@ -72,3 +72,48 @@ def train_command(hand_codes: Path, config: Path, out_path: Path, sheet: str | N
     click.echo(f"wrote {out_path} and {out_path.parent / report_name}; code with "
                f"'textkit code SURVEY.yaml --coder {out_path} --out DIR'")
 
+
+
+def coder_error_files(hand_path: Path, coded_or_config: Path, coded, themes: list[str], table, confidence: float,
+                      encoding: str) -> tuple[dict, dict, list[str]]:
+    """For ``textkit prevalence --coder-error-from``: (files, manifest entry, notes).
+
+    Writes ``coder_corrected.csv`` (raw and Rogan-Gladen corrected prevalence side by side)
+    and ``coder_error.csv`` (per theme: the coder against the hand codes).
+    """
+    import json
+
+    from ..coding.lexicon import load_lexicon
+    from ..errors import InputError
+    from ..io.config import load_config
+    from ..io.output import file_sha256
+    from ..pipeline import coder_error_table, correct_prevalence_for_coder
+
+    coder_manifest: dict = {}
+    if coded_or_config.suffix.lower() in (".yaml", ".yml"):
+        lexicon = load_lexicon(load_config(coded_or_config).lexicon)
+    else:
+        folder = coded_or_config if coded_or_config.is_dir() else coded_or_config.parent
+        manifest = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
+        lexicon_path = Path(manifest.get("lexicon", {}).get("path", ""))
+        if not lexicon_path.is_file():
+            raise InputError("the lexicon named in the coded folder's manifest is not found; the hand codes need "
+                             "it (code again, or pass the survey config)", source=folder / "manifest.json")
+        lexicon = load_lexicon(lexicon_path)
+        coder_manifest = manifest.get("coder") or {}
+    error = coder_error_table(coded, themes, hand_path, lexicon)
+    corrected = correct_prevalence_for_coder(table, error, confidence=confidence)
+    notes = []
+    hand_sha = file_sha256(hand_path)
+    if coder_manifest.get("training", {}).get("hand_codes", {}).get("sha256") == hand_sha:
+        notes.append("the coder was trained on these hand codes: its sensitivity and specificity on them are "
+                     "optimistic; correct with a separate hand-coded sample")
+    refused = error[~((error["sensitivity"] + error["specificity"]) > 1)]["theme"].tolist()
+    if refused:
+        notes.append(f"not corrected (sensitivity + specificity <= 1 or no hand codes): {', '.join(refused)}")
+    rounded = corrected.round({c: 4 for c in corrected.columns if corrected[c].dtype.kind == "f"})
+    files = {"coder_corrected.csv": lambda path: rounded.to_csv(path, index=False, encoding=encoding),
+             "coder_error.csv": lambda path: error.round(4).to_csv(path, index=False, encoding=encoding)}
+    entry = {"path": str(hand_path), "sha256": hand_sha, "method": "rogan-gladen, delta method",
+             "themes_refused": refused, "notes": notes}
+    return files, entry, notes

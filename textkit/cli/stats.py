@@ -110,11 +110,15 @@ def _csv(frame: Any, encoding: str) -> Any:
 @click.option("--encoding", default="utf-8-sig", show_default=True,
               help="Text encoding of the CSV files (utf-8-sig: UTF-8 with a BOM, read correctly by "
                    "spreadsheet software on every platform).")
+@click.option("--coder-error-from", "coder_error_from", type=click.Path(path_type=Path), default=None,
+              metavar="HAND_CODES", help="Also correct each theme's prevalence for the coder's sensitivity and "
+              "specificity on these hand codes (Rogan-Gladen), beside the raw one in coder_corrected.csv.")
 @click.option("--quiet", is_flag=True, help="Print nothing on success.")
 def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...], questions: tuple[str, ...],
                        themes: tuple[str, ...], waves: tuple[str, ...], base: str, totals: bool, family: str,
                        drop_missing_wave: bool, method: str | None, confidence: float, rule_name: str | None,
-                       min_base: int | None, caution_rse: float | None, encoding: str, quiet: bool) -> None:
+                       min_base: int | None, caution_rse: float | None, encoding: str,
+                       coder_error_from: Path | None, quiet: bool) -> None:
     """Weighted theme prevalence by group and wave, with comparisons and tests.
 
     CODED_OR_CONFIG is a folder written by 'textkit code' (coded.parquet and
@@ -172,7 +176,13 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
         "dropped_responses_missing_wave": dropped,
         "counts": {"prevalence": len(table), "comparisons": len(comparisons), "group_tests": len(tests)},
     }
-    write_outputs(out_dir, {"prevalence.csv": _csv(_rounded(table), encoding),
+    extra_files, extra_notes = {}, []
+    if coder_error_from is not None:
+        from .learn import coder_error_files
+
+        extra_files, manifest["coder_error"], extra_notes = coder_error_files(
+            coder_error_from, coded_or_config, coded, theme_list, table, confidence, encoding)
+    write_outputs(out_dir, {**extra_files, "prevalence.csv": _csv(_rounded(table), encoding),
                             "prevalence.parquet": parquet_writer(table.astype({"wave": str, "group": str})),
                             "comparisons.csv": _csv(_rounded(comparisons), encoding),
                             "group_tests.csv": _csv(_rounded(tests), encoding)}, manifest)
@@ -182,6 +192,8 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
         click.echo(f"{len(table)} estimates ({flags.get('ok', 0)} ok, {flags.get('caution', 0)} caution, "
                    f"{flags.get('suppress', 0)} suppress), {len(comparisons)} comparisons, "
                    f"{len(tests)} group tests -> {out_dir}{left_out}")
+        for note in extra_notes:
+            click.echo(f"note: {note}", err=True)
 
 
 def _rule(rule_name: str | None, min_base: int | None, caution_rse: float | None) -> Any:
