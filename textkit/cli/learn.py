@@ -117,3 +117,48 @@ def coder_error_files(hand_path: Path, coded_or_config: Path, coded, themes: lis
     entry = {"path": str(hand_path), "sha256": hand_sha, "method": "rogan-gladen, delta method",
              "themes_refused": refused, "notes": notes}
     return files, entry, notes
+
+
+@click.command("mend")
+@click.argument("hand_codes", type=click.Path(path_type=Path))
+@click.option("--survey", "config", required=True, type=click.Path(path_type=Path),
+              help="Survey config: the answers' text and the lexicon come from it.")
+@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+              help="Folder for lexicon-repair.yaml, repair_terms.csv, repair_candidates.csv, manifest.json.")
+@_hand_options
+@click.option("--folds", default=5, show_default=True, type=click.IntRange(2, 20),
+              help="Cross-validation folds for the expected F1 change of each edit.")
+@click.option("--seed", default=None, type=int, help="Seed of the fold split (default: the config's seed).")
+@click.option("--quiet", is_flag=True, help="No summary.")
+def mend_command(hand_codes: Path, config: Path, out_dir: Path, sheet: str | None, codes_column: str,
+                 leave_out: tuple[str, ...], folds: int, seed: int | None, quiet: bool) -> None:
+    """Propose lexicon edits from HAND_CODES: weak terms, exclusions and missing terms, each with its F1 change.
+
+    HAND_CODES is a hand-coding sheet (wide 0/1 or long form). Writes a commented draft
+    YAML; the lexicon itself is never changed.
+    """
+    from ..coding.repair import render_repair_yaml, repair_lexicon
+    from ..io.output import csv_writer, file_sha256, text_writer, write_outputs
+    from ..pipeline import code_survey, read_hand_codes_for
+
+    survey = code_survey(config, apply_corrections=False)
+    hand, texts, place = read_hand_codes_for(survey, hand_codes, sheet=sheet, codes_column=codes_column,
+                                             leave_out=leave_out)
+    seed = survey.config.seed if seed is None else seed
+    report = repair_lexicon(texts, hand.values[:, : len(survey.lexicon.ids)], survey.lexicon, folds=folds,
+                            seed=int(seed or 0))
+    draft = render_repair_yaml(report, survey.lexicon, source=Path(hand_codes).name)
+    manifest = {"command": "mend",
+                "hand_codes": {"path": str(hand_codes), "sha256": file_sha256(hand_codes), "place": place},
+                "lexicon": {"path": survey.lexicon.source, "sha256": survey.lexicon.sha256},
+                "settings": {"folds": folds, "seed": int(seed or 0)}, "notes": report.notes}
+    write_outputs(out_dir, {"lexicon-repair.yaml": text_writer(draft),
+                            "repair_terms.csv": csv_writer(report.terms, float_format="%.4f"),
+                            "repair_candidates.csv": csv_writer(report.candidates, float_format="%.4f")}, manifest)
+    if quiet:
+        return
+    for note in report.notes:
+        click.echo(note)
+    for row in report.candidates.head(8).itertuples():
+        click.echo(f"  {row.theme:<20} {row.action:<8} {row.term!r:<24} F1 {row.f1_change_cv:+.3f} (cross-validated)")
+    click.echo(f"wrote lexicon-repair.yaml (a draft: your lexicon is unchanged) and the tables to {out_dir}")
