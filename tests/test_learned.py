@@ -38,12 +38,12 @@ def demo_hand():
 @pytest.fixture(scope="module")
 def demo_coder(demo_hand):
     lexicon, texts, values = demo_hand
-    return LearnedCoder(lexicon, random_state=5).fit(texts, values)
+    return LearnedCoder(lexicon, random_state=5, min_positive=20).fit(texts, values)
 
 
 def test_cross_validated_figures_are_deterministic_with_the_seed(demo_hand, demo_coder):
     lexicon, texts, values = demo_hand
-    again = LearnedCoder(lexicon, random_state=5).fit(texts, values)
+    again = LearnedCoder(lexicon, random_state=5, min_positive=20).fit(texts, values)
     pd.testing.assert_frame_equal(demo_coder.report_, again.report_)
     assert demo_coder.combined_ == again.combined_
 
@@ -87,7 +87,7 @@ def test_lexicon_figures_match_scikit_learn(demo_hand, demo_coder):
 
 def test_themes_with_too_few_positive_codes_keep_the_lexicon(demo_coder):
     report = demo_coder.report_.set_index("theme")
-    assert report.loc["payment", "hand"] < 10
+    assert report.loc["payment", "hand"] < 20
     assert report.loc["payment", "status"].startswith("keeps the lexicon")
     assert np.isnan(report.loc["payment", "model_f1"])
     assert demo_coder.models_[demo_coder.themes_.index("payment")] is None
@@ -108,7 +108,8 @@ def test_codes_modes_roll_up_and_blank_answers_stay_empty(demo_coder):
     if dense[0, parking]:
         assert dense[0, transport] == 1  # the child's code counts for its parent
     assert dense[3, themes.index("nature_wildlife")] == 1
-    evidence = demo_coder.top_features(model.features, np.array([3]), "nature_wildlife")
+    evidence = demo_coder.top_features(model.features_of(np.array([3])), np.array([0]), "nature_wildlife")
+    assert np.allclose(demo_coder.decision_function(demo_coder.features(answers)), model.scores, equal_nan=True)
     assert evidence[0] and "+" in evidence[0]
 
 
@@ -161,7 +162,7 @@ def test_train_code_and_correct_end_to_end(tmp_path, capsys):
     assert code == 2 and err.count("\n") == 1 and "drones" in err and "--leave-out" in err
     assert not coder.exists()
     code, out, _ = run(["train", DEMO / "hand_coded.csv", "--survey", DEMO / "survey.yaml", "--out", coder,
-                        "--leave-out", "drones"], capsys)
+                        "--leave-out", "drones", "--min-positive", "20"], capsys)
     assert code == 0 and coder.exists() and (tmp_path / "coder.cv.csv").exists()
     assert "keep the lexicon" in out
     code, _, _ = run(["code", DEMO / "survey.yaml", "--coder", coder, "--out", tmp_path / "coded", "--quiet"],
@@ -173,7 +174,8 @@ def test_train_code_and_correct_end_to_end(tmp_path, capsys):
     assert ((changed["model_added"] != "") | (changed["model_removed"] != "")).all()
     evidence = pd.read_csv(tmp_path / "coded" / "model_evidence.csv")
     assert len(evidence) and evidence["top_features"].notna().all()
-    code, _, err = run(["prevalence", tmp_path / "coded", "--out", tmp_path / "stats", "--quiet",
+    code, _, err = run(["prevalence", tmp_path / "coded", "--out", tmp_path / "stats", "--quiet", "--by", "market",
+                        "--theme", "cost_value", "--theme", "transport", "--theme", "safety",
                         "--coder-error-from", DEMO / "hand_coded_second.csv"], capsys)
     assert code == 0, err
     raw = pd.read_csv(tmp_path / "stats" / "prevalence.csv", encoding="utf-8-sig")

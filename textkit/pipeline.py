@@ -541,7 +541,7 @@ def _model_evidence(coder, learned, coded: pd.DataFrame, final: np.ndarray, answ
         frames.append(pd.DataFrame({
             "response_id": coded["response_id"].to_numpy()[rows], "question": coded["question"].to_numpy()[rows],
             "theme": theme, "score": np.round(learned.scores[rows, index], 4),
-            "top_features": coder.top_features(learned.features, rows, theme)}))
+            "top_features": coder.top_features(learned.features_of(rows), np.arange(len(rows)), theme)}))
     columns = ["response_id", "question", "theme", "score", "top_features"]
     return pd.concat(frames, ignore_index=True)[columns] if frames else pd.DataFrame(columns=columns)
 
