@@ -12,4 +12,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "SurveyDesign": "design",
     "analyse": "estimate", "prevalence": "estimate", "compare_groups": "estimate", "compare_waves": "estimate",
     "group_tests": "estimate", "ReliabilityRule": "rules", "BASE_WIDTH_RULE": "rules", "RULES": "rules",
+    "rogan_gladen": "misclassification",
 })
