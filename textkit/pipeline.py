@@ -460,7 +460,7 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
                   "lexicon_sha256": survey.lexicon.sha256, "survey": Path(config.survey).name,
                   "survey_sha256": manifest["survey"]["sha256"], "version": library_versions(("textkit",))
                   .get("textkit", "")})
-    inputs = ReportInputs(title=f"Survey report: {Path(config.path).stem}", questions=list(config.questions),
+    inputs = ReportInputs(title=f"Survey report: {Path(config.path).name}", questions=list(config.questions),
                           prevalence=prevalence, comparisons=comparisons, group_tests=tests, labels=labels,
                           keyness=keyness, agreement=agreement,
                           agreement_source=Path(hand_coded).name if hand_coded else "", missing=missing, facts=facts)

@@ -151,15 +151,27 @@ class TableView:
 
 @dataclass
 class Section:
-    """One part of the report."""
+    """One part of the report: blocks in reading order, each ``(kind, payload)``.
+
+    kinds: ``text`` (str), ``items`` (list of str), ``table`` (TableView), ``figure`` (Figure),
+    ``missing`` (str: what this build does not have).
+    """
 
     id: str
     title: str
-    paragraphs: list[str] = field(default_factory=list)
-    items: list[str] = field(default_factory=list)
-    tables: list[TableView] = field(default_factory=list)
-    figures: list[Figure] = field(default_factory=list)
-    available: bool = True
+    blocks: list[tuple[str, Any]] = field(default_factory=list)
+
+    def add(self, kind: str, payload: Any) -> Section:
+        self.blocks.append((kind, payload))
+        return self
+
+    @property
+    def tables(self) -> list[TableView]:
+        return [payload for kind, payload in self.blocks if kind == "table"]
+
+    @property
+    def available(self) -> bool:
+        return not any(kind == "missing" for kind, _ in self.blocks)
 
 
 @dataclass
@@ -222,6 +234,9 @@ def _cell(value: Any, kind: str) -> tuple[str, str]:
         return text, "" if pd.isna(value) else repr(round(float(value), 8))
     if kind == "num":
         return _number(value), "" if pd.isna(value) else repr(round(float(value), 8))
+    if kind == "q":
+        text = "" if pd.isna(value) else ("<0.001" if value < 0.001 else f"{float(value):.3f}")
+        return text, "" if pd.isna(value) else repr(float(value))
     if kind == "int":
         return ("" if pd.isna(value) else f"{int(value):,}"), ("" if pd.isna(value) else str(int(value)))
     text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
@@ -286,15 +301,25 @@ def wave_changes(comparisons: pd.DataFrame, waves: Sequence[str], group_var: str
     return rows.reindex(rows["difference"].abs().sort_values(ascending=False, kind="stable").index)
 
 
-def versus_rest(comparisons: pd.DataFrame, group_var: str | None = None, group: str | None = None
-                ) -> pd.DataFrame:
-    """Group-vs-rest contrasts over pooled waves, optionally for one group variable or group."""
+def versus_rest(comparisons: pd.DataFrame, group_var: str | None = None, group: str | None = None,
+                prevalence: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Group-vs-rest contrasts over pooled waves, optionally for one group variable or group.
+
+    With ``prevalence``, each row gets the group estimate's ``flag``, and rows whose
+    group estimate is suppressed are left out (a difference is not shown when its
+    group's share is not).
+    """
     rows = comparisons[(comparisons["group_b"] == REST) & (comparisons["wave_a"] == ALL)]
     if group_var is not None:
         rows = rows[rows["group_var"] == group_var]
     if group is not None:
         rows = rows[rows["group_a"] == group]
-    return rows
+    if prevalence is None:
+        return rows
+    flags = prevalence[prevalence["wave"] == ALL].set_index(["question", "theme", "group_var", "group"])["flag"]
+    keys = pd.MultiIndex.from_frame(rows[["question", "theme", "group_var", "group_a"]])
+    rows = rows.assign(flag=flags.reindex(keys).to_numpy())
+    return rows[rows["flag"] != "suppress"]
 
 
 def significant(frame: pd.DataFrame) -> pd.DataFrame:
@@ -319,10 +344,17 @@ _PREVALENCE_SPEC = [("label", "Theme", "text"), ("group_var", "Group variable", 
 _DIFFERENCE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"), ("group_var", "Group variable", "text"),
                     ("group_a", "Group", "text"), ("estimate_a", "Group share", "pct"),
                     ("estimate_b", "Rest", "pct"), ("difference", "Difference", "pp"), ("ci", "95% CI", "text"),
-                    ("q_value", "q (BH)", "num")]
+                    ("q_value", "q (BH)", "q")]
 _CHANGE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"), ("estimate_b", "Previous wave", "pct"),
                 ("estimate_a", "Latest wave", "pct"), ("difference", "Change", "pp"), ("ci", "95% CI", "text"),
-                ("q_value", "q (BH)", "num")]
+                ("q_value", "q (BH)", "q")]
+
+
+def _figures_or_missing(section: Section, figures: Sequence[Figure], what: str) -> None:
+    for figure in figures:
+        section.add("figure", figure)
+    if not figures:
+        section.add("missing", f"{what}: {NOT_AVAILABLE}.")
 
 
 def summary_section(inputs: ReportInputs) -> Section:
@@ -330,137 +362,126 @@ def summary_section(inputs: ReportInputs) -> Section:
     section = Section("summary", "Summary")
     facts = inputs.facts
     if facts:
-        section.paragraphs.append(
-            f"{facts.get('responses', 0):,} responses, {facts.get('answers', 0):,} answers to "
-            f"{len(inputs.questions)} open question(s); waves: {', '.join(facts.get('waves', [])) or 'one'}; "
-            f"weighted: {'yes' if facts.get('weighted') else 'no'}.")
+        section.add("text", f"{facts.get('responses', 0):,} responses, {facts.get('answers', 0):,} answers to "
+                    f"{len(inputs.questions)} open question(s); waves: {', '.join(facts.get('waves', [])) or 'one'}; "
+                    f"weighted: {'yes' if facts.get('weighted') else 'no'}.")
+    items = []
     for question in inputs.questions:
         top = totals(inputs.prevalence, question).head(5)
-        listed = "; ".join(f"{inputs.labels.get(t, t)} {percent(e)}" for t, e in zip(top["theme"], top["estimate"],
-                                                                                     strict=True))
-        section.items.append(f"{question} — biggest themes: {listed}")
-    differences = significant(versus_rest(inputs.comparisons))
-    section.paragraphs.append(
-        f"{len(differences)} group-versus-rest differences survive false discovery rate control "
-        f"(Benjamini-Hochberg q < {FDR_LEVEL}); the largest:")
+        listed = "; ".join(f"{inputs.labels.get(t, t)} {percent(e)}"
+                           for t, e in zip(top["theme"], top["estimate"], strict=True))
+        items.append(f"{question} — biggest themes: {listed}")
+    section.add("items", items)
+    differences = significant(versus_rest(inputs.comparisons, prevalence=inputs.prevalence))
+    section.add("text", f"{len(differences)} group-versus-rest differences survive false discovery rate control "
+                f"(Benjamini-Hochberg q < {FDR_LEVEL}); the largest:")
     shown = _with_labels(differences.head(10), inputs.labels)
     shown["ci"] = _ci(shown)
-    section.tables.append(table_view(shown, "summary-differences", "Largest differences against the rest",
-                                     _DIFFERENCE_SPEC))
+    section.add("table", table_view(shown, "summary-differences", "Largest differences against the rest",
+                                    _DIFFERENCE_SPEC))
     waves = waves_of(inputs.prevalence)
-    if len(waves) >= 2:
-        changes = significant(wave_changes(inputs.comparisons, waves))
-        changes = _with_labels(changes, inputs.labels)
-        changes["ci"] = _ci(changes)
-        section.paragraphs.append(f"Since the previous wave ({waves[-2]} to {waves[-1]}), {len(changes)} theme "
-                                  "shares changed beyond the false discovery rate control:")
-        section.tables.append(table_view(changes, "summary-changes", f"Changes {waves[-2]} to {waves[-1]}",
-                                         _CHANGE_SPEC))
-    else:
-        section.paragraphs.append("One wave only: no change since a previous wave to report.")
-    return section
+    if len(waves) < 2:
+        return section.add("text", "One wave only: no change since a previous wave to report.")
+    changes = _with_labels(significant(wave_changes(inputs.comparisons, waves)), inputs.labels)
+    changes["ci"] = _ci(changes)
+    section.add("text", f"Since the previous wave ({waves[-2]} to {waves[-1]}), {len(changes)} theme shares of the "
+                "whole sample changed beyond the false discovery rate control:")
+    return section.add("table", table_view(changes, "summary-changes", f"Changes {waves[-2]} to {waves[-1]}",
+                                           _CHANGE_SPEC))
 
 
 def prevalence_section(inputs: ReportInputs, question: str) -> Section:
     """One question: its prevalence charts (when drawn) and table by group, waves pooled."""
     section = Section(f"prevalence-{question}", f"Question: {question}")
-    section.figures = [f for f in inputs.figures if f.section == "prevalence" and question in f.name]
-    if not section.figures:
-        section.paragraphs.append(f"Prevalence charts: {NOT_AVAILABLE}.")
+    _figures_or_missing(section, [f for f in inputs.figures if f.section == "prevalence" and question in f.name],
+                        "Prevalence charts")
     rows = inputs.prevalence[(inputs.prevalence["question"] == question) & (inputs.prevalence["wave"] == ALL)]
     rows = _with_labels(rows, inputs.labels)
     rows["ci"] = _ci(rows)
-    section.paragraphs.append("Weighted share of the respondents who answered the question, waves pooled. The "
-                              "table per wave is in tables.xlsx and prevalence.csv.")
-    section.tables.append(table_view(rows, f"prevalence-{question}-table", f"Prevalence: {question}",
-                                     _PREVALENCE_SPEC, group=_group_of))
-    return section
+    section.add("text", "Weighted share of the respondents who answered the question, waves pooled; rows flagged "
+                "caution are shaded, suppressed estimates are not shown. The table per wave is in tables.xlsx "
+                "and prevalence.csv.")
+    return section.add("table", table_view(rows, f"prevalence-{question}-table", f"Prevalence: {question}",
+                                           _PREVALENCE_SPEC, group=_group_of))
 
 
 def comparisons_section(inputs: ReportInputs) -> Section:
     """Group-vs-rest differences that survive FDR control, filterable by group."""
     section = Section("comparisons", "Comparisons between groups")
-    rows = significant(versus_rest(inputs.comparisons))
+    rows = significant(versus_rest(inputs.comparisons, prevalence=inputs.prevalence))
     rows = _with_labels(rows, inputs.labels)
     rows["ci"] = _ci(rows)
-    section.paragraphs.append(
-        f"Each group against the rest of its group variable; shown: the {len(rows)} differences with "
-        f"Benjamini-Hochberg q < {FDR_LEVEL}. Every comparison (pairs of groups, waves) is in comparisons.csv.")
-    section.tables.append(table_view(rows, "comparisons-table", "Differences against the rest", _DIFFERENCE_SPEC,
-                                     group=lambda r: f"{r['group_var']}: {r['group_a']}"))
-    return section
+    section.add("text", f"Each group against the rest of its group variable; shown: the {len(rows)} differences "
+                f"with Benjamini-Hochberg q < {FDR_LEVEL} whose group estimate is not suppressed (rows whose group "
+                "estimate is flagged caution are shaded). Every comparison (pairs of groups, waves) is in "
+                "comparisons.csv.")
+    return section.add("table", table_view(rows, "comparisons-table", "Differences against the rest",
+                                           _DIFFERENCE_SPEC, group=lambda r: f"{r['group_var']}: {r['group_a']}"))
 
 
 def keyness_section(inputs: ReportInputs, per_side: int = 8) -> Section:
     """Key terms of each group against the rest (and wave against wave), with clouds when drawn."""
     section = Section("keyness", "Words that set groups apart")
-    section.figures = [f for f in inputs.figures if f.section == "keyness"]
-    if not section.figures:
-        section.paragraphs.append(f"Word clouds and keyness charts: {NOT_AVAILABLE}.")
+    _figures_or_missing(section, [f for f in inputs.figures if f.section == "keyness"],
+                        "Word clouds and keyness charts")
     if inputs.keyness is None or inputs.keyness.empty:
-        section.paragraphs.append(f"Keyness table: {NOT_AVAILABLE}.")
-        return section
+        return section.add("missing", f"Keyness table: {NOT_AVAILABLE}.")
     table = inputs.keyness
     table = table[(table["z"] > 0) & (table["q_value"] < FDR_LEVEL) & (table["within_theme"].fillna("") == "")]
     table = table.sort_values(["question", "group_var", "group", "z"], ascending=[True, True, True, False],
                               kind="stable").groupby(["question", "group_var", "group", "reference"],
                                                      sort=False).head(per_side)
-    section.paragraphs.append(
-        f"Up to {per_side} terms per group that its answers use more than the reference (log-odds z with an "
-        "informative Dirichlet prior, counted once per answer, weighted; only terms with BH q < "
-        f"{FDR_LEVEL}). The full table is keyness.csv.")
+    section.add("text", f"Up to {per_side} terms per group that its answers use more than the reference (log-odds "
+                "z with an informative Dirichlet prior, counted once per answer, weighted; only terms with BH q < "
+                f"{FDR_LEVEL}). The full table is keyness.csv.")
     spec = [("question", "Question", "text"), ("group_var", "Group variable", "text"), ("group", "Group", "text"),
             ("reference", "Against", "text"), ("term", "Term", "text"), ("respondents_group", "Answers", "int"),
             ("rate_group", "Group rate", "pct"), ("rate_reference", "Reference rate", "pct"), ("z", "z", "num"),
             ("log_ratio", "Log Ratio", "num")]
-    section.tables.append(table_view(table, "keyness-table", "Key terms", spec,
-                                     group=lambda r: f"{r['group_var']}: {r['group']}"))
-    return section
+    return section.add("table", table_view(table, "keyness-table", "Key terms", spec,
+                                           group=lambda r: f"{r['group_var']}: {r['group']}"))
 
 
 def optional_section(id: str, title: str, frame: pd.DataFrame | None, spec: Sequence[tuple[str, str, str]],
                      intro: str, figures: Sequence[Figure] = (), reason: str = "") -> Section:
     """A section over an optional table: the table when present, else a note that this build lacks it."""
-    section = Section(id, title, figures=list(figures))
+    section = Section(id, title)
     if frame is None:
-        section.available = False
-        section.paragraphs.append(f"{title}: {NOT_AVAILABLE}. {reason}".strip())
-        return section
-    section.paragraphs.append(intro)
-    section.tables.append(table_view(frame, f"{id}-table", title, [s for s in spec if s[0] in frame.columns]))
-    return section
+        return section.add("missing", f"{title}: {NOT_AVAILABLE}. {reason}".strip())
+    for figure in figures:
+        section.add("figure", figure)
+    section.add("text", intro)
+    return section.add("table", table_view(frame, f"{id}-table", title, [s for s in spec if s[0] in frame.columns]))
 
 
 def method_section(inputs: ReportInputs) -> Section:
     """How the numbers were made, and the cautions, with agreement figures when a hand-coded sample is given."""
     section = Section("method", "Method notes and cautions")
     facts = inputs.facts
-    section.paragraphs.append(
-        f"Answers were normalised, tokenised and coded with the lexicon '{facts.get('lexicon', '?')}' "
-        f"(SHA-256 {str(facts.get('lexicon_sha256', ''))[:12]}). Shares are weighted ratio estimates over the "
-        f"respondents who answered; standard errors by Taylor linearisation over the survey design "
-        f"({facts.get('design', 'no design given')}); intervals: {facts.get('method', '')}; publishing rule: "
-        f"{facts.get('rule', '')}. Differences are tested with design-based t tests; q-values control the false "
-        "discovery rate (Benjamini-Hochberg) within each question and group variable.")
-    for title, text in CAUTIONS:
-        section.items.append(f"{title}. {text}")
+    section.add("text",
+                f"Answers were normalised, tokenised and coded with the lexicon '{facts.get('lexicon', '?')}' "
+                f"(SHA-256 {str(facts.get('lexicon_sha256', ''))[:12]}). Shares are weighted ratio estimates over the "
+                f"respondents who answered; standard errors by Taylor linearisation over the survey design "
+                f"({facts.get('design', 'no design given')}); intervals: {facts.get('method', '')}; publishing "
+                f"rule: {facts.get('rule', '')}. Differences are tested with design-based t tests; q-values control "
+                "the false discovery rate (Benjamini-Hochberg) within each question and group variable.")
     flags = inputs.prevalence["flag"].value_counts()
-    section.items.append(f"Flags in this report: {int(flags.get('ok', 0)):,} estimates ok, "
-                         f"{int(flags.get('caution', 0)):,} caution, {int(flags.get('suppress', 0)):,} suppressed.")
+    section.add("items", [f"{title}. {text}" for title, text in CAUTIONS] + [
+        f"Flags in this report: {int(flags.get('ok', 0)):,} estimates ok, {int(flags.get('caution', 0)):,} "
+        f"caution, {int(flags.get('suppress', 0)):,} suppressed."])
     if inputs.agreement is None:
-        section.paragraphs.append("No hand-coded sample was given: the accuracy of the automated coding on these "
-                                  "answers is unknown. Code a random sample by hand and pass it with --hand-coded.")
-        return section
+        return section.add("text", "No hand-coded sample was given: the accuracy of the automated coding on these "
+                           "answers is unknown. Code a random sample by hand and pass it with --hand-coded.")
     overall = inputs.agreement[inputs.agreement["theme"] == ALL].iloc[0]
-    section.paragraphs.append(
-        f"Agreement with the hand-coded sample ({inputs.agreement_source}): over all theme decisions precision "
-        f"{overall['precision']:.2f}, recall {overall['recall']:.2f}, F1 {overall['f1']:.2f}, Cohen's kappa "
-        f"{overall['kappa']:.2f}. Themes with F1 below 0.7 deserve a look before their numbers are used.")
+    section.add("text",
+                f"Agreement with the hand-coded sample ({inputs.agreement_source}): over all theme decisions "
+                f"precision {overall['precision']:.2f}, recall {overall['recall']:.2f}, F1 {overall['f1']:.2f}, "
+                f"Cohen's kappa {overall['kappa']:.2f}. Themes with F1 below 0.7 deserve a look before their "
+                "numbers are used.")
     spec = [("theme", "Theme", "text"), ("hand", "Hand", "int"), ("machine", "Machine", "int"), ("both", "Both", "int"),
             ("precision", "Precision", "num"), ("recall", "Recall", "num"), ("f1", "F1", "num"),
             ("kappa", "Kappa", "num")]
-    section.tables.append(table_view(inputs.agreement, "agreement-table", "Agreement with hand codes", spec))
-    return section
+    return section.add("table", table_view(inputs.agreement, "agreement-table", "Agreement with hand codes", spec))
 
 
 def build_sections(inputs: ReportInputs) -> list[Section]:

@@ -75,8 +75,9 @@ def _difference_line(record: dict, labels: dict, kind: str) -> str:
     theme = labels.get(record["theme"], record["theme"])
     points = 100 * record["difference"]
     if kind == "rest":
+        caution = " (caution: unstable group estimate)" if record.get("flag") == "caution" else ""
         return (f"{record['question']}: {theme} {percent(record['estimate_a'])} vs {percent(record['estimate_b'])} "
-                f"for the rest ({points:+.1f} pts, q={record['q_value']:.3f})")
+                f"for the rest ({points:+.1f} pts, q={record['q_value']:.3f}){caution}")
     return (f"{record['question']}: {theme} {percent(record['estimate_b'])} -> {percent(record['estimate_a'])} "
             f"({points:+.1f} pts, q={record['q_value']:.3f})")
 
@@ -97,7 +98,7 @@ def group_summaries(prevalence: pd.DataFrame, comparisons: pd.DataFrame, group_v
         bases = [f"{q}: {int(mine[(mine['question'] == q) & (mine['wave'] == ALL)]['n'].max()):,} answers"
                  for q in questions if not mine[mine["question"] == q].empty]
         flags = mine["flag"].value_counts()
-        rest = versus_rest(comparisons, group_var, group)
+        rest = versus_rest(comparisons, group_var, group, prevalence=prevalence)
         top_rows = [row for q in questions for row in _top_rows(prevalence, rest, q, group_var, group, labels, top)]
         differences = [_difference_line(r, labels, "rest") for r in significant(rest).head(5).to_dict("records")]
         changes = [_difference_line(r, labels, "wave")
