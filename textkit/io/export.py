@@ -78,35 +78,41 @@ def _sheet_title(name: str, used: set[str]) -> str:
 
 
 def _write_sheet(sheet: Any, frame: Any, percent_columns: set[str]) -> None:
+    """Fill a write-only sheet: bold frozen header, percentages, flag styles on the flagged rows."""
     import numpy as np
+    from openpyxl.cell import WriteOnlyCell
     from openpyxl.styles import Font, PatternFill
+    from openpyxl.utils import get_column_letter
 
-    bold = Font(bold=True)
-    shade = {"caution": (PatternFill("solid", fgColor="FFF2CC"), Font(italic=False)),
-             "suppress": (PatternFill("solid", fgColor="E7E6E6"), Font(italic=True, color="7F7F7F"))}
+    styles = {"caution": (PatternFill("solid", fgColor="FFF2CC"), Font(italic=False)),
+              "suppress": (PatternFill("solid", fgColor="E7E6E6"), Font(italic=True, color="7F7F7F"))}
     columns = [str(c) for c in frame.columns]
-    sheet.append([neutralise_text(c) for c in columns])
-    for cell in sheet[1]:
-        cell.font = bold
     sheet.freeze_panes = "A2"
-    safe = neutralise_frame(frame)
-    for row in safe.itertuples(index=False, name=None):
-        sheet.append([None if isinstance(v, float) and not np.isfinite(v) else
-                      (v.item() if isinstance(v, np.generic) else v) for v in row])
     for index, name in enumerate(columns, start=1):
-        letter = sheet.cell(row=1, column=index).column_letter
-        sheet.column_dimensions[letter].width = min(max(len(name) + 2, 10), 40)
-        if name in percent_columns:
-            for (cell,) in sheet.iter_rows(min_row=2, min_col=index, max_col=index):
+        sheet.column_dimensions[get_column_letter(index)].width = min(max(len(name) + 2, 10), 40)
+    header = []
+    for name in columns:
+        cell = WriteOnlyCell(sheet, neutralise_text(name))
+        cell.font = Font(bold=True)
+        header.append(cell)
+    sheet.append(header)
+    is_percent = [name in percent_columns for name in columns]
+    flags = frame["flag"].astype(str).to_numpy() if "flag" in columns else np.full(len(frame), "")
+    for flag, row in zip(flags, neutralise_frame(frame).itertuples(index=False, name=None), strict=True):
+        style = styles.get(flag)
+        cells = []
+        for value, percent in zip(row, is_percent, strict=True):
+            if isinstance(value, float) and not np.isfinite(value):
+                value = None
+            elif isinstance(value, np.generic):
+                value = value.item()
+            cell = WriteOnlyCell(sheet, value)
+            if percent:
                 cell.number_format = "0.0%"
-    if "flag" in columns:
-        flags = frame["flag"].astype(str).to_numpy()
-        for offset, flag in enumerate(flags):
-            if flag in shade:
-                fill, font = shade[flag]
-                for cell in sheet[offset + 2]:
-                    cell.fill = fill
-                    cell.font = font
+            if style:
+                cell.fill, cell.font = style
+            cells.append(cell)
+        sheet.append(cells)
 
 
 def workbook_bytes(tables: Mapping[str, Any], notes: Any, percent_columns: set[str] | frozenset[str] = frozenset()
@@ -126,8 +132,7 @@ def workbook_bytes(tables: Mapping[str, Any], notes: Any, percent_columns: set[s
 
     from openpyxl import Workbook
 
-    book = Workbook()
-    book.remove(book.active)
+    book = Workbook(write_only=True)
     used: set[str] = {"notes"}
     for name, frame in tables.items():
         _write_sheet(book.create_sheet(_sheet_title(name, used)), frame, set(percent_columns))
