@@ -358,6 +358,9 @@ def _report_keyness(survey: CodedSurvey, max_terms: int = 15) -> pd.DataFrame:
     roles = survey.roles
     wave = roles.get("wave")
     by = list(dict.fromkeys([*(roles.get("groups") or []), *([wave] if wave else [])]))
+    answered_rows = survey.coded[survey.coded["answered"] == 1]
+    by = [v for v in by if answered_rows[v].nunique() >= 2]  # one wave or one group: nothing to set apart
+    wave = wave if wave in by else None
     if not by:
         return pd.DataFrame(columns=KEYNESS_COLUMNS)
     matrix, terms, n_words = document_term_matrix(survey.stream, binary=True)

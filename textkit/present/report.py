@@ -274,7 +274,9 @@ def _with_labels(frame: pd.DataFrame, labels: dict, column: str = "theme") -> pd
 
 
 def _ci(frame: pd.DataFrame, low: str = "ci_low", high: str = "ci_high") -> pd.Series:
-    return frame[low].map(percent).str.rstrip("%") + "–" + frame[high].map(percent)
+    text = [f"{percent(a)[:-1]}–{percent(b)}" if percent(a) and percent(b) else ""
+            for a, b in zip(frame[low], frame[high], strict=True)]
+    return pd.Series(text, index=frame.index, dtype=object)
 
 
 def _group_of(record: dict) -> str:
