@@ -106,6 +106,9 @@ def _write_sheet(sheet: Any, frame: Any, percent_columns: set[str]) -> None:
                 value = None
             elif isinstance(value, np.generic):
                 value = value.item()
+            if not (percent or style):
+                cells.append(value)  # a plain value: no cell object needed
+                continue
             cell = WriteOnlyCell(sheet, value)
             if percent:
                 cell.number_format = "0.0%"
