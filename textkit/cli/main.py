@@ -27,6 +27,10 @@ _LAZY_COMMANDS = {
     "suggest": "textkit.cli.discover:suggest_command",
     "report": "textkit.cli.report:report_command",
     "demo": "textkit.cli.report:demo_command",
+    "review": "textkit.cli.review:review_command",
+    "sample": "textkit.cli.review:sample_command",
+    "charts": "textkit.cli.present:charts_command",
+    "quotes": "textkit.cli.present:quotes_command",
 }
 
 

@@ -13,4 +13,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "read_table": "readers", "read_survey": "readers", "SurveyData": "readers", "answered_mask": "readers",
     "write_outputs": "output", "csv_writer": "output", "parquet_writer": "output", "text_writer": "output",
     "json_writer": "output", "file_sha256": "output",
+    "workbook_writer": "workbook", "read_coding_file": "workbook", "neutralise_cell": "workbook",
 })

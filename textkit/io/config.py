@@ -19,6 +19,7 @@ Example::
     lexicon: ../lexicons/visitor_experience.yaml
     seed: 20261202
     non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
+    corrections: corrections.csv     # optional: hand corrections applied after coding
 
 Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
 index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
@@ -70,6 +71,7 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
     "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
+    "corrections",
 )
 _DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu", "nest")
 _REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
@@ -132,6 +134,9 @@ class SurveyConfig:
         Seed for every random step (default 0).
     non_answers : tuple of str
         Normalised (trimmed, single-spaced, lower-cased) answers that count as not answered.
+    corrections : Path or None
+        A researcher's corrections (CSV, or a filled review workbook), applied after
+        automated coding on every run; resolved against the config's folder.
     """
 
     path: Path | None
@@ -154,6 +159,7 @@ class SurveyConfig:
     lexicon: Path | None = None
     seed: int = 0
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
+    corrections: Path | None = None
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
@@ -251,6 +257,10 @@ class _Builder:
         return _Item("scalar", None, value=value, text=str(value))
 
 
+#: An absent value (a key not given).
+_NULL = _Item("null", None)
+
+
 def _describe(item: _Item) -> str:
     if item.kind == "scalar":
         return f"{type(item.value).__name__} {item.text!r}"
@@ -318,6 +328,24 @@ class _Validator:
         return path.resolve()
 
     def validate(self, root: _Item) -> dict[str, Any]:
+        """Every field of :class:`SurveyConfig` from the config's tree, or the first problem."""
+        entries, key_line = self.top_level(root)
+        out: dict[str, Any] = {"survey": self.survey_file(entries["survey"])}
+        out.update(self.reading(entries, key_line, out["survey"]))
+        out.update(self.column_roles(entries))
+        out.update(self.design(entries.get("design", _NULL)))
+        wave = entries.get("wave", _NULL)
+        out["wave"] = self.column(wave, "wave")
+        self.claim(out["wave"], "wave", wave.line)
+        out["groups"] = self.groups(entries.get("groups", _NULL))
+        out["lexicon"] = self.path(entries.get("lexicon", _NULL), "lexicon", optional=True)
+        out["seed"] = self.seed(entries.get("seed", _NULL))
+        out["non_answers"] = self.non_answers(entries.get("non_answers"))
+        out["corrections"] = self.path(entries.get("corrections", _NULL), "corrections", optional=True)
+        return out
+
+    def top_level(self, root: _Item) -> tuple[dict[str, _Item], dict[str, int | None]]:
+        """The top-level entries and their lines, after checking keys and required keys."""
         if root.kind != "mapping":
             raise self.fail(f"a survey config must be a mapping of keys (survey:, id:, questions:), "
                             f"found {_describe(root)}", root.line)
@@ -328,26 +356,35 @@ class _Validator:
             if key not in entries:
                 raise self.fail(f"required key '{key}' is missing; a survey config needs "
                                 f"{', '.join(_REQUIRED)}", root.line)
-        out: dict[str, Any] = {}
-        out["survey"] = self.path(entries["survey"], "survey")
-        if survey_format(out["survey"]) is None:
-            raise self.fail(f"'survey' has an unknown file type '{out['survey'].suffix}'; expected one of "
-                            f"{', '.join(SURVEY_FORMATS)}", entries["survey"].line)
-        self.reading(entries, key_line, out)
+        return entries, key_line
 
-        out["id_column"] = self.column(entries["id"], "id", optional=False)
+    def survey_file(self, item: _Item) -> Path:
+        survey = self.path(item, "survey")
+        assert survey is not None
+        if survey_format(survey) is None:
+            raise self.fail(f"'survey' has an unknown file type '{survey.suffix}'; expected one of "
+                            f"{', '.join(SURVEY_FORMATS)}", item.line)
+        return survey
+
+    def column_roles(self, entries: dict[str, _Item]) -> dict[str, Any]:
+        """The id, questions and weight columns."""
+        out: dict[str, Any] = {"id_column": self.column(entries["id"], "id", optional=False)}
         self.claim(out["id_column"], "id", entries["id"].line)
         out["questions"] = self.questions(entries["questions"])
-        out["weight"] = self.column(entries.get("weight", _Item("null", None)), "weight")
-        self.claim(out["weight"], "weight", entries.get("weight", _Item("null", None)).line)
+        weight = entries.get("weight", _NULL)
+        out["weight"] = self.column(weight, "weight")
+        self.claim(out["weight"], "weight", weight.line)
+        return out
 
-        design = entries.get("design", _Item("null", None))
+    def design(self, design: _Item) -> dict[str, Any]:
+        """The ``design:`` mapping: strata, cluster and fpc columns, single_psu policy, nest flag."""
         if design.kind not in ("null", "mapping"):
             raise self.fail(f"'design' must be a mapping (strata:, cluster:, fpc:, single_psu:), "
                             f"found {_describe(design)}", design.line)
         self.check_keys(design, _DESIGN_KEYS, "'design'")
+        out: dict[str, Any] = {}
         for key in ("strata", "cluster", "fpc"):
-            item = design.entries.get(key, (None, _Item("null", None)))[1]
+            item = design.entries.get(key, (None, _NULL))[1]
             out[key] = self.column(item, f"design.{key}")
             self.claim(out[key], key, item.line)
         policy_item = design.entries.get("single_psu", (None, None))[1]
@@ -365,57 +402,55 @@ class _Validator:
                 raise self.fail(f"'design.nest' must be true or false, found {_describe(nest_item)}",
                                 nest_item.line)
             out["nest"] = nest_item.value
-
-        wave = entries.get("wave", _Item("null", None))
-        out["wave"] = self.column(wave, "wave")
-        self.claim(out["wave"], "wave", wave.line)
-        out["groups"] = self.groups(entries.get("groups", _Item("null", None)))
-        out["lexicon"] = self.path(entries.get("lexicon", _Item("null", None)), "lexicon", optional=True)
-        out["seed"] = self.seed(entries.get("seed", _Item("null", None)))
-        out["non_answers"] = self.non_answers(entries.get("non_answers"))
         return out
 
     def reading(self, entries: dict[str, _Item], key_line: dict[str, int | None],
-                out: dict[str, Any]) -> None:
-        survey = out["survey"]
+                survey: Path) -> dict[str, Any]:
+        """The reading options (sheet, table, query, encoding, delimiter), each checked against the file type."""
         for option in READING_OPTIONS:
             if option in entries and entries[option].kind != "null":
                 misfit = reading_option_misfit(survey, option)
                 if misfit:
                     raise self.fail(misfit, key_line[option])
-        sheet = entries.get("sheet", _Item("null", None))
+        out: dict[str, Any] = {"sheet": self.sheet(entries.get("sheet", _NULL))}
+        out["table"] = self.text(entries.get("table", _NULL), "table", optional=True)
+        out["query"] = self.text(entries.get("query", _NULL), "query", optional=True)
+        if out["table"] is not None and out["query"] is not None:
+            raise self.fail("give either 'table' or 'query', not both", key_line["query"])
+        out["encoding"] = self.encoding(entries.get("encoding", _NULL))
+        out["delimiter"] = self.delimiter(entries.get("delimiter", _NULL))
+        return out
+
+    def sheet(self, sheet: _Item) -> str | int | None:
         if sheet.kind == "null":
-            out["sheet"] = None
-        elif sheet.kind == "scalar" and isinstance(sheet.value, int) and not isinstance(sheet.value, bool):
+            return None
+        if sheet.kind == "scalar" and isinstance(sheet.value, int) and not isinstance(sheet.value, bool):
             if sheet.value < 0:
                 raise self.fail("'sheet' index must be 0 or more (0 is the first sheet), "
                                 f"found {sheet.value}", sheet.line)
-            out["sheet"] = sheet.value
-        else:
-            out["sheet"] = self.text(sheet, "sheet")
-        out["table"] = self.text(entries.get("table", _Item("null", None)), "table", optional=True)
-        out["query"] = self.text(entries.get("query", _Item("null", None)), "query", optional=True)
-        if out["table"] is not None and out["query"] is not None:
-            raise self.fail("give either 'table' or 'query', not both", key_line["query"])
-        encoding = entries.get("encoding", _Item("null", None))
-        out["encoding"] = self.text(encoding, "encoding", optional=True)
-        if out["encoding"] is not None:
+            return sheet.value
+        return self.text(sheet, "sheet")
+
+    def encoding(self, encoding: _Item) -> str | None:
+        name = self.text(encoding, "encoding", optional=True)
+        if name is not None:
             try:
-                codecs.lookup(out["encoding"])
+                codecs.lookup(name)
             except LookupError:
-                raise self.fail(f"unknown text encoding {out['encoding']!r}; try utf-8, cp1252 or latin-1",
+                raise self.fail(f"unknown text encoding {name!r}; try utf-8, cp1252 or latin-1",
                                 encoding.line) from None
-        delimiter = entries.get("delimiter", _Item("null", None))
+        return name
+
+    def delimiter(self, delimiter: _Item) -> str | None:
         if delimiter.kind == "null":
-            out["delimiter"] = None
-        else:
-            value = delimiter.value
-            if delimiter.kind != "scalar" or not isinstance(value, str) or len(value) != 1:
-                raise self.fail("'delimiter' must be one character (write \"\\t\" in double quotes for "
-                                f"a tab), found {_describe(delimiter)}", delimiter.line)
-            if delimiter.value in "\"\r\n":
-                raise self.fail(f"'delimiter' cannot be {delimiter.value!r}", delimiter.line)
-            out["delimiter"] = delimiter.value
+            return None
+        value = delimiter.value
+        if delimiter.kind != "scalar" or not isinstance(value, str) or len(value) != 1:
+            raise self.fail("'delimiter' must be one character (write \"\\t\" in double quotes for "
+                            f"a tab), found {_describe(delimiter)}", delimiter.line)
+        if delimiter.value in "\"\r\n":
+            raise self.fail(f"'delimiter' cannot be {delimiter.value!r}", delimiter.line)
+        return delimiter.value
 
     def questions(self, item: _Item) -> dict[str, str]:
         questions: dict[str, str] = {}

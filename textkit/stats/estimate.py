@@ -48,7 +48,7 @@ Choices
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -57,6 +57,8 @@ from scipy import sparse, stats
 
 from ..errors import AnalysisError
 from .design import SurveyDesign
+from .domains import DomainTotals, TargetBlock, domain_totals, union_estimates  # noqa: F401 (re-exported)
+from .rao_scott import rao_scott_table
 
 #: Label of totals (group variable and group) and pooled waves.
 ALL = "(all)"
@@ -310,227 +312,6 @@ def confidence_interval(estimate: Any, variance: Any, n: Any, kish_n: Any, df: A
 
 
 # ---------------------------------------------------------------------------
-# Vectorised core: PSU x domain totals and the covariance of domain scores
-# ---------------------------------------------------------------------------
-@dataclass
-class DomainTotals:
-    """Totals and score covariances of ``n_domains`` base domains (all themes at once).
-
-    Attributes
-    ----------
-    weight : ndarray of shape (n_domains,)
-        Sum of weights (weighted n).
-    count : ndarray of shape (n_domains,)
-        Number of rows (unweighted n).
-    weight_sq : ndarray of shape (n_domains,)
-        Sum of squared weights (for the Kish effective n).
-    estimate : ndarray of shape (n_domains, n_themes)
-        Weighted shares (NaN for an empty domain).
-    zz : ndarray of shape (n_themes, n_domains, n_domains), or (n_themes, n_domains) if diagonal
-        Design covariance of the ratio scores ``z_d`` (the diagonal is ``Var(p_d)``).
-    zs : same shape as ``zz``
-        Covariance of ``z_d`` with the weight totals ``s_e`` of the domains.
-    ss : ndarray of shape (n_domains, n_domains), or (n_domains,) if diagonal
-        Covariance of the weight totals.
-    """
-
-    weight: np.ndarray
-    count: np.ndarray
-    weight_sq: np.ndarray
-    estimate: np.ndarray
-    zz: np.ndarray
-    zs: np.ndarray
-    ss: np.ndarray
-
-    @property
-    def variance(self) -> np.ndarray:
-        """Design variance of each domain's shares, shape (n_domains, n_themes)."""
-        if self.zz.ndim == 2:
-            return self.zz.T.copy()
-        return np.diagonal(self.zz, axis1=1, axis2=2).T.copy()
-
-
-def _compact(keys: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
-    """Sorted distinct values of ``keys`` (all in [0, size)) and each key's position among them."""
-    if size <= max(8 * keys.size, 1 << 20):
-        present = np.zeros(size, dtype=bool)
-        present[keys] = True
-        distinct = np.flatnonzero(present)
-        position = np.cumsum(present) - 1
-        return distinct, position[keys]
-    distinct, inverse = np.unique(keys, return_inverse=True)
-    return distinct, inverse
-
-
-def _cross_sums(group: np.ndarray, variable: np.ndarray, factor: np.ndarray, left: np.ndarray,
-                right: np.ndarray, n_variables: int, diagonal: bool) -> np.ndarray:
-    """``sum_g factor_g sum_{i, j in g} left_i * right_j`` by (variable_i, variable_j).
-
-    ``group`` must be sorted. Returns shape (n_variables**2, width) or, when
-    ``diagonal`` (pairs i == j only; entries are unique per group and variable),
-    (n_variables, width).
-    """
-    m, width = left.shape
-    if diagonal:
-        first, second = np.arange(m), np.arange(m)
-        key = variable
-        size = n_variables
-    else:
-        starts = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
-        lengths = np.diff(np.r_[starts, m])
-        run = np.repeat(np.arange(starts.size), lengths)
-        repeat = lengths[run]
-        first = np.repeat(np.arange(m), repeat)
-        offset = np.arange(first.size) - np.repeat(np.cumsum(repeat) - repeat, repeat)
-        second = np.repeat(starts[run], repeat) + offset
-        key = variable[first] * n_variables + variable[second]
-        size = n_variables * n_variables
-    out = np.zeros((size, width))
-    chunk = max(1, 8_000_000 // max(width, 1))
-    for start in range(0, first.size, chunk):
-        i, j = first[start:start + chunk], second[start:start + chunk]
-        products = left[i] * right[j] * factor[group[i]][:, None]
-        collect = sparse.csr_matrix((np.ones(i.size), (key[start:start + chunk], np.arange(i.size))),
-                                    shape=(size, i.size))
-        out += collect @ products
-    return out
-
-
-def domain_totals(Y: Any, unit: np.ndarray, domain: np.ndarray, n_domains: int, design: SurveyDesign,
-                  diagonal: bool = False) -> DomainTotals:
-    """Weighted shares of every theme in every base domain, with their design covariance.
-
-    Parameters
-    ----------
-    Y : sparse matrix or ndarray of shape (n_rows, n_themes)
-        0/1 theme indicators.
-    unit : ndarray of int of shape (n_rows,)
-        Design unit (response) of each row.
-    domain : ndarray of int of shape (n_rows,)
-        Base domain of each row, 0..n_domains-1, or -1 outside every domain
-        (e.g. did not answer). Domains must not overlap (one code per row).
-    n_domains : int
-        Number of base domains.
-    design : SurveyDesign
-    diagonal : bool, default False
-        Only the variances (no covariances between domains): for many domains.
-
-    Returns
-    -------
-    DomainTotals
-    """
-    inside = domain >= 0
-    rows = np.flatnonzero(inside)
-    d_rows = domain[rows].astype(np.int64)
-    u_rows = unit[rows]
-    w_rows = design.weights[u_rows]
-    psu_rows = design.psu[u_rows]
-    k = Y.shape[1]
-    cell_keys, cell_of_row = _compact(psu_rows * n_domains + d_rows, design.n_psus * n_domains)
-    m = cell_keys.size
-    cell_psu = cell_keys // n_domains
-    cell_domain = cell_keys % n_domains
-    cell_weight = np.bincount(cell_of_row, weights=w_rows, minlength=m)
-    gather = sparse.csr_matrix((w_rows, (cell_of_row, np.arange(rows.size))), shape=(m, rows.size))
-    y_rows = Y[rows] if sparse.issparse(Y) else np.asarray(Y)[rows]
-    cell_yes = gather @ y_rows
-    cell_yes = cell_yes.toarray() if sparse.issparse(cell_yes) else np.asarray(cell_yes, dtype=float)
-
-    weight = np.bincount(cell_domain, weights=cell_weight, minlength=n_domains)
-    count = np.bincount(d_rows, minlength=n_domains).astype(float)
-    weight_sq = np.bincount(d_rows, weights=w_rows ** 2, minlength=n_domains)
-    by_domain = sparse.csr_matrix((np.ones(m), (cell_domain, np.arange(m))), shape=(n_domains, m))
-    yes = by_domain @ cell_yes
-    with np.errstate(divide="ignore", invalid="ignore"):
-        estimate = np.where(weight[:, None] > 0, yes / weight[:, None], np.nan)
-        inverse = np.where(weight > 0, 1.0 / weight, 0.0)
-    safe = np.nan_to_num(estimate)
-    scores = (cell_yes - safe[cell_domain] * cell_weight[:, None]) * inverse[cell_domain][:, None]
-
-    scale, centre = design.variance_factors()
-    ones = np.ones((1, k))
-    # PSU level: sum over PSUs of scale_h * (z z', z s', s s')
-    left = np.hstack([scores, scores, cell_weight[:, None]])
-    right = np.hstack([scores, cell_weight[:, None] * ones, cell_weight[:, None]])
-    total = _cross_sums(cell_psu, cell_domain, scale[design.psu_stratum], left, right, n_domains, diagonal)
-    # stratum level: minus centre_h * (stratum sums)(stratum sums)'
-    cell_stratum = design.psu_stratum[cell_psu]
-    sum_keys, sum_of_cell = _compact(cell_stratum * n_domains + cell_domain, design.n_strata * n_domains)
-    summing = sparse.csr_matrix((np.ones(m), (sum_of_cell, np.arange(m))), shape=(sum_keys.size, m))
-    stratum_scores = summing @ scores
-    stratum_weight = summing @ cell_weight
-    left = np.hstack([stratum_scores, stratum_scores, stratum_weight[:, None]])
-    right = np.hstack([stratum_scores, stratum_weight[:, None] * ones, stratum_weight[:, None]])
-    total -= _cross_sums(sum_keys // n_domains, sum_keys % n_domains, centre, left, right, n_domains,
-                         diagonal)
-    if diagonal:
-        zz, zs, ss = total[:, :k].T, total[:, k:2 * k].T, total[:, 2 * k]
-    else:
-        cube = total.reshape(n_domains, n_domains, 2 * k + 1)
-        zz = np.ascontiguousarray(np.moveaxis(cube[:, :, :k], 2, 0))
-        zs = np.ascontiguousarray(np.moveaxis(cube[:, :, k:2 * k], 2, 0))
-        ss = cube[:, :, 2 * k]
-    return DomainTotals(weight=weight, count=count, weight_sq=weight_sq, estimate=estimate,
-                        zz=zz, zs=zs, ss=ss)
-
-
-def _linear_covariance(totals: DomainTotals, on_scores: np.ndarray, on_weights: np.ndarray) -> np.ndarray:
-    """Covariance of linear combinations ``sum_d a_rd z_d + b_rd s_d`` of the base variables.
-
-    Parameters
-    ----------
-    on_scores : ndarray of shape (r, n_domains) or (n_themes, r, n_domains)
-    on_weights : ndarray of shape (n_themes, r, n_domains)
-
-    Returns
-    -------
-    ndarray of shape (n_themes, r, r)
-    """
-    n_themes = totals.zz.shape[0]
-    a = on_scores if on_scores.ndim == 3 else np.broadcast_to(on_scores, (n_themes, *on_scores.shape))
-    b = on_weights
-    aza = a @ totals.zz @ np.swapaxes(a, 1, 2)
-    azb = a @ totals.zs @ np.swapaxes(b, 1, 2)
-    bsb = b @ totals.ss @ np.swapaxes(b, 1, 2)
-    return aza + azb + np.swapaxes(azb, 1, 2) + bsb
-
-
-def union_estimates(totals: DomainTotals, membership: np.ndarray
-                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Shares of unions of base domains and their full covariance (delta method).
-
-    Parameters
-    ----------
-    totals : DomainTotals
-        From :func:`domain_totals` (not diagonal).
-    membership : ndarray of 0/1 of shape (n_targets, n_domains)
-        Which base domains make up each target domain.
-
-    Returns
-    -------
-    estimate : ndarray of shape (n_targets, n_themes)
-    covariance : ndarray of shape (n_themes, n_targets, n_targets)
-    weight, count, weight_sq : ndarray of shape (n_targets,)
-    """
-    member = membership.astype(float)
-    weight = member @ totals.weight
-    count = member @ totals.count
-    weight_sq = member @ totals.weight_sq
-    safe = np.nan_to_num(totals.estimate)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        estimate = np.where(weight[:, None] > 0, (member @ (totals.weight[:, None] * safe)) / weight[:, None],
-                            np.nan)
-        inverse = np.where(weight > 0, 1.0 / weight, 0.0)
-    target_safe = np.nan_to_num(estimate)
-    on_scores = member * totals.weight[None, :] * inverse[:, None]
-    # d p_A / d s_d = (p_d - p_A) / W_A for d in A; shape (themes, targets, domains)
-    on_weights = (member[None, :, :] * (safe.T[:, None, :] - target_safe.T[:, :, None])
-                  * inverse[None, :, None])
-    covariance = _linear_covariance(totals, on_scores, on_weights)
-    return estimate, covariance, weight, count, weight_sq
-
-
-# ---------------------------------------------------------------------------
 # Tables
 # ---------------------------------------------------------------------------
 def add_q_values(frame: pd.DataFrame, p_column: str = "p_value", q_column: str = "q_value") -> pd.DataFrame:
@@ -547,28 +328,6 @@ def add_q_values(frame: pd.DataFrame, p_column: str = "p_value", q_column: str =
     return frame
 
 
-@dataclass
-class _Block:
-    """All targets of one question x group variable."""
-
-    question: Any
-    group_var: str
-    groups: list[str]          # named groups (labels), G
-    n_base_groups: int         # G plus 1 if some rows lack a group value
-    waves: list[Any]           # wave labels (empty without waves)
-    totals: DomainTotals
-    target_group: list[str] = field(default_factory=list)
-    target_wave: list[Any] = field(default_factory=list)
-    target_kind: list[str] = field(default_factory=list)   # "group", "total", "rest"
-    membership: np.ndarray | None = None
-    estimate: np.ndarray | None = None
-    covariance: np.ndarray | None = None
-    weight: np.ndarray | None = None
-    count: np.ndarray | None = None
-    weight_sq: np.ndarray | None = None
-    df: np.ndarray | None = None
-
-
 class SurveyAnalysis:
     """Prevalence of every question x theme x group x wave, ready for tables.
 
@@ -576,7 +335,7 @@ class SurveyAnalysis:
     :meth:`wave_comparisons`, :meth:`comparisons` and :meth:`group_tests`.
     """
 
-    def __init__(self, blocks: list[_Block], themes: list[str], design: SurveyDesign, method: str,
+    def __init__(self, blocks: list[TargetBlock], themes: list[str], design: SurveyDesign, method: str,
                  confidence: float, rule: ReliabilityRule) -> None:
         self.blocks = blocks
         self.themes = themes
@@ -599,29 +358,34 @@ class SurveyAnalysis:
             if block.question in seen_totals:
                 keep = [i for i in keep if block.target_kind[i] != "total"]
             seen_totals.add(block.question)
-            if not keep:
-                continue
-            keep_idx = np.asarray(keep)
-            k = len(self.themes)
-            t = keep_idx.size
-            variance = np.diagonal(block.covariance, axis1=1, axis2=2)[:, keep_idx].T   # (t, k)
-            frames.append(pd.DataFrame({
-                "question": block.question,
-                "theme": np.tile(self.themes, t),
-                "group_var": np.repeat([ALL if block.target_kind[i] == "total" else block.group_var
-                                        for i in keep], k),
-                "group": np.repeat([block.target_group[i] for i in keep], k),
-                "wave": np.repeat(np.asarray([block.target_wave[i] for i in keep], dtype=object), k),
-                "n": np.repeat(block.count[keep_idx], k).astype(np.int64),
-                "weighted_n": np.repeat(block.weight[keep_idx], k),
-                "_weight_sq": np.repeat(block.weight_sq[keep_idx], k),
-                "estimate": block.estimate[keep_idx].ravel(),
-                "_variance": np.maximum(variance.ravel(), 0.0),
-                "df": np.repeat(block.df[keep_idx], k),
-            }))
+            if keep:
+                frames.append(self._estimate_rows(block, np.asarray(keep)))
         if not frames:
             return pd.DataFrame(columns=PREVALENCE_COLUMNS)
-        table = pd.concat(frames, ignore_index=True)
+        return self._add_precision(pd.concat(frames, ignore_index=True))[PREVALENCE_COLUMNS]
+
+    def _estimate_rows(self, block: TargetBlock, keep: np.ndarray) -> pd.DataFrame:
+        """Targets ``keep`` of ``block`` x every theme: ids, bases, estimate and variance."""
+        k = len(self.themes)
+        t = keep.size
+        variance = np.diagonal(block.covariance, axis1=1, axis2=2)[:, keep].T   # (t, k)
+        return pd.DataFrame({
+            "question": block.question,
+            "theme": np.tile(self.themes, t),
+            "group_var": np.repeat([ALL if block.target_kind[i] == "total" else block.group_var
+                                    for i in keep], k),
+            "group": np.repeat([block.target_group[i] for i in keep], k),
+            "wave": np.repeat(np.asarray([block.target_wave[i] for i in keep], dtype=object), k),
+            "n": np.repeat(block.count[keep], k).astype(np.int64),
+            "weighted_n": np.repeat(block.weight[keep], k),
+            "_weight_sq": np.repeat(block.weight_sq[keep], k),
+            "estimate": block.estimate[keep].ravel(),
+            "_variance": np.maximum(variance.ravel(), 0.0),
+            "df": np.repeat(block.df[keep], k),
+        })
+
+    def _add_precision(self, table: pd.DataFrame) -> pd.DataFrame:
+        """Effective n, SE, design effect, interval, method and flag of every row."""
         with np.errstate(divide="ignore", invalid="ignore"):
             table["n_eff"] = table["weighted_n"] ** 2 / table["_weight_sq"]
             p = table["estimate"].to_numpy()
@@ -635,10 +399,10 @@ class SurveyAnalysis:
         table["ci_low"], table["ci_high"], table["method"] = low, high, used
         table["flag"] = self.rule.flags(table["n"], p, table["se"], low, high, table["df"], design_n)
         table.loc[~np.isfinite(p), "method"] = ""
-        return table[PREVALENCE_COLUMNS]
+        return table
 
     # ------------------------------------------------------------- comparisons
-    def _difference_rows(self, block: _Block, first: np.ndarray, second: np.ndarray, independent: bool,
+    def _difference_rows(self, block: TargetBlock, first: np.ndarray, second: np.ndarray, independent: bool,
                          df: np.ndarray) -> dict[str, np.ndarray]:
         """Differences target[first] - target[second] for all themes, shape (pairs * themes,)."""
         variance = np.diagonal(block.covariance, axis1=1, axis2=2)       # (k, T)
@@ -663,7 +427,7 @@ class SurveyAnalysis:
                 "se": se.ravel(), "ci_low": (difference - t_crit * se).ravel(),
                 "ci_high": (difference + t_crit * se).ravel(), "p_value": p_value.ravel()}
 
-    def _comparison_frame(self, block: _Block, first: list[int], second: list[int], independent: bool,
+    def _comparison_frame(self, block: TargetBlock, first: list[int], second: list[int], independent: bool,
                           group_var: str, test: str) -> pd.DataFrame:
         first_idx, second_idx = np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)
         df = block.df[first_idx] + block.df[second_idx] if independent else block.df[first_idx]
@@ -693,16 +457,7 @@ class SurveyAnalysis:
         for block in self.blocks:
             if not block.groups:
                 continue
-            index = {(kind, g, w): i for i, (kind, g, w) in
-                     enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
-            first, second = [], []
-            for wave in [ALL, *block.waves]:
-                for a_pos, a in enumerate(block.groups):
-                    for b in block.groups[a_pos + 1:]:
-                        first.append(index[("group", a, wave)])
-                        second.append(index[("group", b, wave)])
-                    first.append(index[("group", a, wave)])
-                    second.append(index[("rest", a, wave)])
+            first, second = _group_pairs(block)
             frames.append(self._comparison_frame(block, first, second, False, block.group_var, "design-t"))
         return _finish_comparisons(frames)
 
@@ -716,18 +471,12 @@ class SurveyAnalysis:
         for block in self.blocks:
             if len(block.waves) < 2:
                 continue
-            index = {(kind, g, w): i for i, (kind, g, w) in
-                     enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
             kinds = [("group", g) for g in block.groups]
             if block.question not in seen_totals:
                 kinds.insert(0, ("total", ALL))
             seen_totals.add(block.question)
             for kind, group in kinds:
-                first, second = [], []
-                for later_pos, later in enumerate(block.waves):
-                    for earlier in block.waves[:later_pos]:
-                        first.append(index[(kind, group, later)])
-                        second.append(index[(kind, group, earlier)])
+                first, second = _wave_pairs(block, kind, group)
                 frames.append(self._comparison_frame(block, first, second, True,
                                                      ALL if kind == "total" else block.group_var,
                                                      "independent-t"))
@@ -759,7 +508,7 @@ class SurveyAnalysis:
             if len(block.groups) < 2:
                 continue
             for wave in [ALL, *block.waves]:
-                frame = self._rao_scott(block, wave)
+                frame = rao_scott_table(block, wave, self.themes)
                 if frame is not None:
                     frames.append(frame)
         if not frames:
@@ -769,79 +518,36 @@ class SurveyAnalysis:
         table = add_q_values(table, "chi2_p_value", "chi2_q_value")
         return table[GROUP_TEST_COLUMNS]
 
-    def _rao_scott(self, block: _Block, wave: Any) -> pd.DataFrame | None:
-        totals = block.totals
-        k = len(self.themes)
-        rows = [i for i, (kind, w) in enumerate(zip(block.target_kind, block.target_wave, strict=True))
-                if kind == "group" and w == wave and block.weight[i] > 0]
-        r = len(rows)
-        if r < 2:
-            return None
-        member = block.membership[rows].astype(float)             # (r, D)
-        scope = member.sum(axis=0)                                 # base domains in the table
-        s_total = float((member @ totals.weight).sum())
-        n_total = float((member @ totals.count).sum())
-        safe = np.nan_to_num(totals.estimate)                      # (D, k)
-        p_group = block.estimate[rows]                             # (r, k)
-        w_group = block.weight[rows]
-        yes = w_group[:, None] * p_group / s_total                 # pi_g1, (r, k)
-        no = w_group[:, None] * (1 - p_group) / s_total            # pi_g0
-        # linear maps of the cell shares on the base variables (z_d, s_d)
-        on_z = member * totals.weight[None, :] / s_total           # (r, D)
-        on_scores = np.concatenate([np.broadcast_to(on_z, (k, r, on_z.shape[1])),
-                                    -np.broadcast_to(on_z, (k, r, on_z.shape[1]))], axis=1)
-        on_w_yes = (member[None] * safe.T[:, None, :] - yes.T[:, :, None] * scope[None, None, :]) / s_total
-        in_scope = scope[None, None, :]
-        on_w_no = (member[None] * (1 - safe.T[:, None, :]) - no.T[:, :, None] * in_scope) / s_total
-        on_weights = np.concatenate([on_w_yes, on_w_no], axis=1)   # (k, 2r, D)
-        cov = _linear_covariance(totals, on_scores, on_weights)    # (k, 2r, 2r)
-        cells = np.concatenate([yes, no], axis=0).T                # (k, 2r) order: col * r + row
-        row_share = (cells[:, :r] + cells[:, r:])                  # (k, r)
-        col_share = np.stack([cells[:, :r].sum(axis=1), cells[:, r:].sum(axis=1)], axis=1)  # (k, 2)
-        expected = np.concatenate([row_share * col_share[:, :1], row_share * col_share[:, 1:]], axis=1)
-        valid = (col_share.min(axis=1) > 0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            pearson = n_total * np.where(expected > 0, (cells - expected) ** 2 / expected, 0.0).sum(axis=1)
-        contrast = _interaction_contrasts(r, 2)                   # (2r, r-1)
-        inv_cells = np.where(cells > 0, 1.0 / np.where(cells > 0, cells, 1.0), 0.0)   # (k, 2r)
-        weighted = contrast[None, :, :] * inv_cells[:, :, None]    # D^-1 C, (k, 2r, r-1)
-        denominator = np.swapaxes(contrast[None], 1, 2) @ weighted / n_total
-        numerator = np.swapaxes(weighted, 1, 2) @ cov @ weighted
-        denominator[~valid] = np.eye(r - 1)
-        numerator[~valid] = np.eye(r - 1)
-        delta = np.linalg.solve(denominator, numerator)
-        trace = np.trace(delta, axis1=1, axis2=2)
-        trace_sq = np.trace(delta @ delta, axis1=1, axis2=2)
-        df_design = float(block.df[rows[0]])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d0 = trace ** 2 / trace_sq
-            f_stat = pearson / trace
-            first_order = pearson / (trace / (r - 1))
-        f_p = stats.f.sf(f_stat, d0, d0 * df_design)
-        chi_p = stats.chi2.sf(first_order, r - 1)
-        nan = np.where(valid, 1.0, np.nan)
-        return pd.DataFrame({
-            "question": block.question, "theme": self.themes, "group_var": block.group_var, "wave": wave,
-            "n_groups": r, "n": int(n_total), "pearson_chi2": pearson * nan,
-            "mean_deff": trace / (r - 1) * nan, "f_statistic": f_stat * nan, "f_df_num": d0 * nan,
-            "f_df_den": d0 * df_design * nan, "f_p_value": f_p * nan, "chi2_first_order": first_order * nan,
-            "chi2_df": r - 1, "chi2_p_value": chi_p * nan,
-        })
+
+def _target_index(block: TargetBlock) -> dict[tuple[str, Any, Any], int]:
+    """(kind, group, wave) -> target position in ``block``."""
+    return {(kind, g, w): i for i, (kind, g, w) in
+            enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
 
 
-def _interaction_contrasts(rows: int, columns: int) -> np.ndarray:
-    """Row x column interaction contrasts orthogonal to the main effects, shape (rows*columns, (r-1)(c-1)).
+def _group_pairs(block: TargetBlock) -> tuple[list[int], list[int]]:
+    """Targets compared by group comparisons: each pair of groups, then each group vs its rest, per wave."""
+    index = _target_index(block)
+    first, second = [], []
+    for wave in [ALL, *block.waves]:
+        for a_pos, a in enumerate(block.groups):
+            for b in block.groups[a_pos + 1:]:
+                first.append(index[("group", a, wave)])
+                second.append(index[("group", b, wave)])
+            first.append(index[("group", a, wave)])
+            second.append(index[("rest", a, wave)])
+    return first, second
 
-    Cells are ordered ``column * rows + row``.
-    """
-    cell = np.arange(rows * columns)
-    row, col = cell % rows, cell // rows
-    row_dummies = (row[:, None] == np.arange(1, rows)[None, :]).astype(float)
-    col_dummies = (col[:, None] == np.arange(1, columns)[None, :]).astype(float)
-    main = np.hstack([np.ones((cell.size, 1)), row_dummies, col_dummies])
-    interactions = (row_dummies[:, :, None] * col_dummies[:, None, :]).reshape(cell.size, -1)
-    fitted = main @ np.linalg.lstsq(main, interactions, rcond=None)[0]
-    return interactions - fitted
+
+def _wave_pairs(block: TargetBlock, kind: str, group: str) -> tuple[list[int], list[int]]:
+    """Targets compared by wave comparisons of one group (or the total): later, earlier."""
+    index = _target_index(block)
+    first, second = [], []
+    for later_pos, later in enumerate(block.waves):
+        for earlier in block.waves[:later_pos]:
+            first.append(index[(kind, group, later)])
+            second.append(index[(kind, group, earlier)])
+    return first, second
 
 
 def _finish_comparisons(frames: list[pd.DataFrame]) -> pd.DataFrame:
@@ -934,30 +640,11 @@ def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | N
     if not themes:
         raise AnalysisError("no theme columns to estimate")
     groups = list(groups)
-    for column in [*groups, *([wave] if wave else [])]:
-        if column not in coded.columns:
-            raise AnalysisError(f"the data has no column '{column}' (asked for as a group or wave); columns "
-                                f"are: {', '.join(map(str, coded.columns[:20]))}", column=column)
-    if answered_column is not None and answered_column not in coded.columns:
-        raise AnalysisError("the answered column is not in the coded table", column=answered_column)
+    _check_columns(coded, groups, wave, answered_column)
     if design is None:
         has_id = id_column in coded.columns
         design = SurveyDesign.from_frame(coded, wave=wave, id=id_column if has_id else None)
-    design_wave = design.columns.get("wave")
-    if wave is not None and wave != design_wave:
-        raise AnalysisError(f"the design was built with wave column '{design_wave}', not '{wave}'; build it "
-                            f"with SurveyDesign.from_frame(..., wave='{wave}')", column=wave)
-    if design.ids is not None and id_column in coded.columns:
-        unit = design.unit_index(coded[id_column])
-        if (unit < 0).any():
-            row = int(np.flatnonzero(unit < 0)[0])
-            raise AnalysisError(f"response '{coded[id_column].iloc[row]}' is not in the survey design",
-                                row=row + 1, column=id_column)
-    elif len(coded) == design.n_units:
-        unit = np.arange(len(coded))
-    else:
-        raise AnalysisError(f"the coded table has {len(coded)} rows but the design {design.n_units} "
-                            f"responses; give the '{id_column}' column and build the design with id=")
+    unit = _design_units(coded, design, wave, id_column)
     Y = _theme_matrix(coded, themes)
     if answered_column is None:
         answered = np.ones(len(coded), dtype=bool)
@@ -968,39 +655,68 @@ def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | N
         questions = list(questions)
     else:
         question_codes, questions = np.zeros(len(coded), dtype=np.int64), [ALL]
-    wave_codes = design.wave[unit] if design.wave is not None else np.zeros(len(coded), dtype=np.int64)
-    wave_labels = list(design.wave_labels)
-    n_waves = design.n_waves
     group_codes = {column: _group_codes(coded, column) for column in groups}
-    wave_df = design.wave_df().astype(float)
-
-    blocks: list[_Block] = []
-    variables = groups if groups else [ALL]
+    blocks: list[TargetBlock] = []
     for q_code, question in enumerate(questions):
         in_question = (question_codes == q_code) & answered
-        for variable in variables:
-            if variable == ALL:
-                codes, labels = np.zeros(len(coded), dtype=np.int64), []
-                base_groups = 1  # every row sits in the pseudo group "no group value"
-            else:
-                codes, labels = group_codes[variable]
-                codes = np.where(codes < 0, len(labels), codes)
-                base_groups = len(labels) + int((codes[in_question] == len(labels)).any())
-                if base_groups == len(labels):
-                    codes = np.where(codes == len(labels), -1, codes)
-            n_domains = base_groups * n_waves
-            domain = np.where(in_question & (codes >= 0), codes * n_waves + wave_codes, -1)
-            totals = domain_totals(Y, unit, domain, n_domains, design)
-            block = _Block(question=question, group_var=variable, groups=labels, n_base_groups=base_groups,
-                           waves=wave_labels, totals=totals)
-            _add_targets(block, n_waves, design.df, wave_df)
-            (block.estimate, block.covariance, block.weight, block.count,
-             block.weight_sq) = union_estimates(totals, block.membership)
-            blocks.append(block)
+        for variable in groups if groups else [ALL]:
+            codes = group_codes.get(variable, (np.zeros(len(coded), dtype=np.int64), []))
+            blocks.append(_build_block(Y, unit, design, question, in_question, variable, *codes))
     return SurveyAnalysis(blocks, themes, design, method, confidence, rule)
 
 
-def _add_targets(block: _Block, n_waves: int, design_df: int, wave_df: np.ndarray) -> None:
+def _check_columns(coded: pd.DataFrame, groups: list[str], wave: str | None,
+                   answered_column: str | None) -> None:
+    for column in [*groups, *([wave] if wave else [])]:
+        if column not in coded.columns:
+            raise AnalysisError(f"the data has no column '{column}' (asked for as a group or wave); columns "
+                                f"are: {', '.join(map(str, coded.columns[:20]))}", column=column)
+    if answered_column is not None and answered_column not in coded.columns:
+        raise AnalysisError("the answered column is not in the coded table", column=answered_column)
+
+
+def _design_units(coded: pd.DataFrame, design: SurveyDesign, wave: str | None, id_column: str) -> np.ndarray:
+    """Design unit (response) of every row of ``coded``, shape (n_rows,)."""
+    design_wave = design.columns.get("wave")
+    if wave is not None and wave != design_wave:
+        raise AnalysisError(f"the design was built with wave column '{design_wave}', not '{wave}'; build it "
+                            f"with SurveyDesign.from_frame(..., wave='{wave}')", column=wave)
+    if design.ids is not None and id_column in coded.columns:
+        unit = design.unit_index(coded[id_column])
+        if (unit < 0).any():
+            row = int(np.flatnonzero(unit < 0)[0])
+            raise AnalysisError(f"response '{coded[id_column].iloc[row]}' is not in the survey design",
+                                row=row + 1, column=id_column)
+        return unit
+    if len(coded) == design.n_units:
+        return np.arange(len(coded))
+    raise AnalysisError(f"the coded table has {len(coded)} rows but the design {design.n_units} "
+                        f"responses; give the '{id_column}' column and build the design with id=")
+
+
+def _build_block(Y: sparse.csr_matrix, unit: np.ndarray, design: SurveyDesign, question: Any,
+                 in_question: np.ndarray, variable: str, codes: np.ndarray, labels: list[str]) -> TargetBlock:
+    """Base domains (group x wave within the question), their totals and every target's estimate."""
+    n_waves = design.n_waves
+    if variable == ALL:
+        base_groups = 1  # every row sits in the pseudo group "no group value"
+    else:
+        codes = np.where(codes < 0, len(labels), codes)
+        base_groups = len(labels) + int((codes[in_question] == len(labels)).any())
+        if base_groups == len(labels):
+            codes = np.where(codes == len(labels), -1, codes)
+    wave_codes = design.wave[unit] if design.wave is not None else np.zeros(len(unit), dtype=np.int64)
+    domain = np.where(in_question & (codes >= 0), codes * n_waves + wave_codes, -1)
+    totals = domain_totals(Y, unit, domain, base_groups * n_waves, design)
+    block = TargetBlock(question=question, group_var=variable, groups=labels, n_base_groups=base_groups,
+                        waves=list(design.wave_labels), totals=totals)
+    _add_targets(block, n_waves, design.df, design.wave_df().astype(float))
+    (block.estimate, block.covariance, block.weight, block.count,
+     block.weight_sq) = union_estimates(totals, block.membership)
+    return block
+
+
+def _add_targets(block: TargetBlock, n_waves: int, design_df: int, wave_df: np.ndarray) -> None:
     """Targets of a block: every group (and the total) per wave and pooled, and each group's rest."""
     g_named = len(block.groups)
     n_domains = block.n_base_groups * n_waves
