@@ -267,7 +267,9 @@ def test_demo_end_to_end(tmp_path, capsys):
     assert manifest["hand_coded"]["sha256"]
     raw = html.unescape((out / "index.html").read_text(encoding="utf-8"))
     # agreement figures from the hand-coded sample appear in the cautions (kappa over all decisions)
-    kappa = pd.read_csv(out / "agreement.csv").set_index("theme").loc["(all)", "kappa"]
+    from textkit.present.report import overall_agreement
+
+    kappa = overall_agreement(pd.read_csv(out / "agreement.csv"))["kappa"]
     assert f"Cohen's kappa {kappa:.2f}" in raw
 
 

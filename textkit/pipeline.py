@@ -460,13 +460,23 @@ def _frame_csv(frame: pd.DataFrame) -> bytes:
 
 
 def _missing_pieces() -> dict[str, str]:
-    """Pieces of the report whose modules this build lacks, with what the report says instead."""
+    """Pieces the report does not include in this build, with the reason the report gives.
+
+    Charts, word clouds and quotes (``textkit.present.charts``/``clouds``/``quotes``) and topics
+    (``textkit.discover.topics``) are not yet assembled into the report, whether or not their
+    modules are installed; the report says so instead of leaving a stand-in.
+    """
     import importlib.util
 
-    wanted = {"topics": ("textkit.discover.topics", "Topic modelling of the uncoded answers is not in this build."),
-              "charts": ("textkit.present.charts", "Charts and word clouds are not in this build."),
-              "quotes": ("textkit.present.quotes", "The quote picker is not in this build.")}
-    return {name: reason for name, (module, reason) in wanted.items() if importlib.util.find_spec(module) is None}
+    wanted = {"topics": ("textkit.discover.topics", "topics"),
+              "charts": ("textkit.present.charts", "charts and word clouds"),
+              "quotes": ("textkit.present.quotes", "the quote picker")}
+    missing = {}
+    for name, (module, what) in wanted.items():
+        present = importlib.util.find_spec(module) is not None
+        missing[name] = (f"{what.capitalize()} exist in this package but are not yet assembled into the report."
+                         if present else f"{what.capitalize()} are not in this build.")
+    return missing
 
 
 def _report_files(inputs, summaries: list) -> dict[str, bytes]:

@@ -80,6 +80,7 @@ def _sheet_title(name: str, used: set[str]) -> str:
 def _write_sheet(sheet: Any, frame: Any, percent_columns: set[str]) -> None:
     """Fill a write-only sheet: bold frozen header, percentages, flag styles on the flagged rows."""
     import numpy as np
+    import pandas as pd
     from openpyxl.cell import WriteOnlyCell
     from openpyxl.styles import Font, PatternFill
     from openpyxl.utils import get_column_letter
@@ -102,8 +103,8 @@ def _write_sheet(sheet: Any, frame: Any, percent_columns: set[str]) -> None:
         style = styles.get(flag)
         cells = []
         for value, percent in zip(row, is_percent, strict=True):
-            if isinstance(value, float) and not np.isfinite(value):
-                value = None
+            if value is pd.NA or value is pd.NaT or (isinstance(value, float) and not np.isfinite(value)):
+                value = None  # missing and infinite values are empty cells
             elif isinstance(value, np.generic):
                 value = value.item()
             if not (percent or style):

@@ -86,6 +86,15 @@ COLUMN_NOTES: dict[str, str] = {
     "machine": "Answers coded with the theme by the lexicon.",
     "both": "Answers coded with the theme by both.",
     "precision": "Share of machine codes the hand coder agrees with.",
+    "prevalence": "Share of the hand-coded answers the hand coder gave the theme.",
+    "precision_low": "Lower end of the bootstrap interval of precision (blank: not computed).",
+    "precision_high": "Upper end of the bootstrap interval of precision (blank: not computed).",
+    "recall_low": "Lower end of the bootstrap interval of recall (blank: not computed).",
+    "recall_high": "Upper end of the bootstrap interval of recall (blank: not computed).",
+    "f1_low": "Lower end of the bootstrap interval of F1 (blank: not computed).",
+    "f1_high": "Upper end of the bootstrap interval of F1 (blank: not computed).",
+    "kappa_low": "Lower end of the bootstrap interval of kappa (blank: not computed).",
+    "kappa_high": "Upper end of the bootstrap interval of kappa (blank: not computed).",
     "recall": "Share of hand codes the machine found.",
     "f1": "Harmonic mean of precision and recall.",
     "kappa": "Cohen's kappa: agreement beyond chance on the yes/no decision.",
@@ -343,8 +352,9 @@ def totals(prevalence: pd.DataFrame, question: str, wave: str = ALL) -> pd.DataF
 _PREVALENCE_SPEC = [("label", "Theme", "text"), ("group_var", "Group variable", "text"), ("group", "Group", "text"),
                     ("estimate", "Share", "pct"), ("ci", "95% CI", "text"), ("n", "Base n", "int"),
                     ("deff", "Design effect", "num"), ("flag", "Flag", "text")]
-_DIFFERENCE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"), ("group_var", "Group variable", "text"),
-                    ("group_a", "Group", "text"), ("estimate_a", "Group share", "pct"),
+_DIFFERENCE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"),
+                    ("group_var", "Group variable", "text"), ("group_a", "Group", "text"),
+                    ("estimate_a", "Group share", "pct"),
                     ("estimate_b", "Rest", "pct"), ("difference", "Difference", "pp"), ("ci", "95% CI", "text"),
                     ("q_value", "q (BH)", "q")]
 _CHANGE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"), ("estimate_b", "Previous wave", "pct"),
@@ -474,7 +484,7 @@ def method_section(inputs: ReportInputs) -> Section:
     if inputs.agreement is None:
         return section.add("text", "No hand-coded sample was given: the accuracy of the automated coding on these "
                            "answers is unknown. Code a random sample by hand and pass it with --hand-coded.")
-    overall = inputs.agreement[inputs.agreement["theme"] == ALL].iloc[0]
+    overall = overall_agreement(inputs.agreement)
     section.add("text",
                 f"Agreement with the hand-coded sample ({inputs.agreement_source}): over all theme decisions "
                 f"precision {overall['precision']:.2f}, recall {overall['recall']:.2f}, F1 {overall['f1']:.2f}, "
@@ -484,6 +494,12 @@ def method_section(inputs: ReportInputs) -> Section:
             ("precision", "Precision", "num"), ("recall", "Recall", "num"), ("f1", "F1", "num"),
             ("kappa", "Kappa", "num")]
     return section.add("table", table_view(inputs.agreement, "agreement-table", "Agreement with hand codes", spec))
+
+
+def overall_agreement(table: pd.DataFrame) -> pd.Series:
+    """The row that pools every theme decision (``(micro)``, or ``(all)`` in older tables)."""
+    pooled = table[table["theme"].isin(["(micro)", ALL])]
+    return pooled.iloc[0]
 
 
 def build_sections(inputs: ReportInputs) -> list[Section]:

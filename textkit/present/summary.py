@@ -144,7 +144,8 @@ def summary_figure(summary: GroupSummary) -> Any:
                 color="#444444", parse_math=False)
     y = _block(figure, 0.905, "Base and flags", ["; ".join(summary.bases), summary.flags])
     header = f"{'theme':<52}{'share':>16}{'95% CI':>16}{'rest':>8}  vs rest"
-    rows = [header] + [f"{textwrap.shorten(t, 50):<52}{s:>16}{c:>16}{r:>8}  {m}" for t, s, c, r, m in summary.top_themes]
+    rows = [header] + [f"{textwrap.shorten(t, 50):<52}{s:>16}{c:>16}{r:>8}  {m}"
+                       for t, s, c, r, m in summary.top_themes]
     figure.text(0.06, y, "Top themes against the rest", fontsize=10.5, fontweight="bold", color="#0b3d5c")
     y -= 0.022
     for row in rows:
