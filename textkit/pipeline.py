@@ -420,3 +420,219 @@ def with_topics(survey: CodedSurvey, topics) -> CodedSurvey:
     manifest["topics"] = {"scope": topics.scope, "counts": topics.counts,
                           "k": {q: m.n_topics_ for q, m in topics.models.items()}}
     return dataclasses.replace(survey, coded=coded, coverage=coverage, manifest=manifest)
+
+
+# ---------------------------------------------------------------------------
+# The report: every stage in one run (textkit report / textkit demo)
+# ---------------------------------------------------------------------------
+@dataclass
+class SurveyReport:
+    """Everything ``textkit report`` writes, in memory: ``files`` (relative name -> bytes) and the manifest."""
+
+    files: dict[str, bytes]
+    manifest: dict
+    timings: dict[str, float]
+    summaries: list = field(default_factory=list)
+
+
+class _Stages:
+    """Runs named stages, timing each and naming the stage in any error it raises."""
+
+    def __init__(self, progress: Callable[[str, float], None] | None) -> None:
+        self.progress = progress or (lambda name, seconds: None)
+        self.timings: dict[str, float] = {}
+
+    def run(self, name: str, function: Callable, *args, **kwargs):
+        import time
+
+        from .errors import TextkitError
+
+        started = time.perf_counter()
+        try:
+            value = function(*args, **kwargs)
+        except TextkitError as error:
+            raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
+                              row=error.row, column=error.column) from error
+        self.timings[name] = round(time.perf_counter() - started, 3)
+        self.progress(name, self.timings[name])
+        return value
+
+
+def summary_group_variables(config: SurveyConfig) -> list[str]:
+    """Group variables ``--summaries`` accepts: the config's ``groups``."""
+    return list(config.groups)
+
+
+def check_summary_variable(config: SurveyConfig, group_var: str | None) -> None:
+    """Refuse an unknown ``--summaries`` variable before any work, listing the valid ones."""
+    valid = summary_group_variables(config)
+    if group_var is not None and group_var not in valid:
+        raise InputError(f"--summaries: the config has no group variable '{group_var}'; valid ones: "
+                         f"{', '.join(valid) or 'none (add groups: to the config)'}", source=config.path)
+
+
+def _report_statistics(survey: CodedSurvey):
+    from .stats.design import SurveyDesign
+    from .stats.estimate import DEFAULT_METHOD, DEFAULT_RULE, analyse
+
+    roles = survey.roles
+    design = SurveyDesign.from_frame(
+        survey.coded, roles.get("weight"), roles.get("strata"), roles.get("cluster"), roles.get("fpc"),
+        roles.get("single_psu") or "error", wave=roles.get("wave"), id="response_id",
+        nest=bool(roles.get("nest", False)), source=str(survey.config.survey))
+    analysis = analyse(survey.coded, list(survey.themes), design, groups=list(roles.get("groups") or []),
+                       wave=roles.get("wave"), method=DEFAULT_METHOD, rule=DEFAULT_RULE)
+    facts = {"method": DEFAULT_METHOD, "rule": f"{DEFAULT_RULE.name} ({DEFAULT_RULE.origin})",
+             "design": f"{design.n_strata} strata, {design.n_psus} PSUs, {design.df} df"}
+    return analysis.prevalence(), analysis.comparisons(), analysis.group_tests(), facts
+
+
+def _report_keyness(survey: CodedSurvey, max_terms: int = 15) -> pd.DataFrame:
+    from .discover.keyness import KEYNESS_COLUMNS, compare
+    from .text.ngrams import document_term_matrix
+
+    roles = survey.roles
+    wave = roles.get("wave")
+    by = list(dict.fromkeys([*(roles.get("groups") or []), *([wave] if wave else [])]))
+    answered_rows = survey.coded[survey.coded["answered"] == 1]
+    by = [v for v in by if answered_rows[v].nunique() >= 2]  # one wave or one group: nothing to set apart
+    wave = wave if wave in by else None
+    if not by:
+        return pd.DataFrame(columns=KEYNESS_COLUMNS)
+    matrix, terms, n_words = document_term_matrix(survey.stream, binary=True)
+    weights = survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None
+    answered = survey.coded["answered"].to_numpy(dtype=bool)
+    tables = [compare(matrix, terms, n_words, survey.coded[by], weights=weights, by=by, wave=wave, question=q,
+                      answered=answered & (survey.coded["question"] == q).to_numpy(), max_terms=max_terms)
+              for q in survey.config.questions]
+    return pd.concat(tables, ignore_index=True)[KEYNESS_COLUMNS]
+
+
+def _report_agreement(survey: CodedSurvey, hand_coded: Path) -> pd.DataFrame:
+    from .coding.agreement import compare_with_hand_codes
+    from .io.readers import read_table
+
+    frame, _ = read_table(hand_coded)
+    for column in ("text", "themes"):
+        if column not in frame.columns:
+            raise InputError(f"the hand-coded sample needs columns 'text' and 'themes'; found: "
+                             f"{', '.join(map(str, frame.columns))}", source=hand_coded, column=column)
+    table, _ = compare_with_hand_codes(frame["text"].tolist(), frame["themes"].tolist(), survey.lexicon,
+                                       source=str(hand_coded))
+    return table
+
+
+def _frame_csv(frame: pd.DataFrame) -> bytes:
+    from .io.export import neutralise_frame
+
+    return neutralise_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
+
+
+def _missing_pieces() -> dict[str, str]:
+    """Pieces the report does not include in this build, with the reason the report gives.
+
+    Charts, word clouds and quotes (``textkit.present.charts``/``clouds``/``quotes``) and topics
+    (``textkit.discover.topics``) are not yet assembled into the report, whether or not their
+    modules are installed; the report says so instead of leaving a stand-in.
+    """
+    import importlib.util
+
+    wanted = {"topics": ("textkit.discover.topics", "topics"),
+              "charts": ("textkit.present.charts", "charts and word clouds"),
+              "quotes": ("textkit.present.quotes", "the quote picker")}
+    missing = {}
+    for name, (module, what) in wanted.items():
+        present = importlib.util.find_spec(module) is not None
+        missing[name] = (f"{what.capitalize()} exist in this package but are not yet assembled into the report."
+                         if present else f"{what.capitalize()} are not in this build.")
+    return missing
+
+
+def _report_files(inputs, summaries: list) -> dict[str, bytes]:
+    from .io.export import workbook_bytes
+    from .present.report import PERCENT_COLUMNS, column_notes, render_report, report_tables
+    from .present.summary import file_stems, summary_html, summary_pdf
+
+    tables = report_tables(inputs)
+    files = {"index.html": render_report(inputs).encode("utf-8"),
+             "tables.xlsx": workbook_bytes(tables, column_notes(tables), PERCENT_COLUMNS)}
+    files.update({f"{name}.csv": _frame_csv(frame) for name, frame in tables.items()})
+    if inputs.quotes is not None:
+        files["quotes.csv"] = _frame_csv(inputs.quotes)
+    for figure in inputs.figures:
+        files[f"charts/{figure.name}.svg"] = figure.svg
+        if figure.png:
+            files[f"charts/{figure.name}.png"] = figure.png
+    stems = file_stems([s.group for s in summaries])
+    for summary in summaries:
+        files[f"summaries/{stems[summary.group]}.pdf"] = summary_pdf(summary)
+        files[f"summaries/{stems[summary.group]}.html"] = summary_html(summary).encode("utf-8")
+    return files
+
+
+def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = None,
+                 hand_coded: str | Path | None = None,
+                 progress: Callable[[str, float], None] | None = None) -> SurveyReport:
+    """Run every stage (code, topics, statistics, keyness, agreement, charts, quotes, report, summaries).
+
+    Parameters
+    ----------
+    config : path or SurveyConfig
+    summaries : str, optional
+        A group variable of the config: one one-page summary per group.
+    hand_coded : path, optional
+        A hand-coded sample (columns ``text`` and ``themes``) for the agreement figures.
+    progress : callable(stage, seconds), optional
+        Called after each stage.
+
+    Raises
+    ------
+    TextkitError
+        Naming the stage; an unknown ``summaries`` variable is refused before any work.
+    """
+    from .io.output import library_versions
+    from .present.report import ReportInputs, waves_of
+    from .present.summary import group_summaries
+
+    config = config if isinstance(config, SurveyConfig) else load_config(config)
+    check_summary_variable(config, summaries)
+    stages = _Stages(progress)
+    survey = stages.run("code", code_survey, config)
+    missing = _missing_pieces()
+    prevalence, comparisons, tests, facts = stages.run("statistics", _report_statistics, survey)
+    keyness = stages.run("keyness", _report_keyness, survey)
+    agreement = None if hand_coded is None else stages.run("agreement", _report_agreement, survey, Path(hand_coded))
+    labels = {theme.id: theme.label for theme in survey.lexicon.themes}
+    manifest = survey.manifest
+    facts.update({"responses": manifest["counts"]["responses"], "answers": manifest["counts"]["answered"],
+                  "waves": waves_of(prevalence), "weighted": bool(config.weight), "lexicon": survey.lexicon.name,
+                  "lexicon_sha256": survey.lexicon.sha256, "survey": Path(config.survey).name,
+                  "survey_sha256": manifest["survey"]["sha256"], "version": library_versions(("textkit",))
+                  .get("textkit", "")})
+    inputs = ReportInputs(title=f"Survey report: {Path(config.path).name}", questions=list(config.questions),
+                          prevalence=prevalence, comparisons=comparisons, group_tests=tests, labels=labels,
+                          keyness=keyness, agreement=agreement,
+                          agreement_source=Path(hand_coded).name if hand_coded else "", missing=missing, facts=facts)
+    pages = [] if summaries is None else stages.run(
+        "summaries", group_summaries, prevalence, comparisons, summaries, labels, list(config.questions),
+        quotes=inputs.quotes, survey_title=inputs.title)
+    files = stages.run("report", _report_files, inputs, pages)
+    report_manifest = {
+        "command": "report", "config": manifest["config"], "survey": manifest["survey"],
+        "lexicon": manifest["lexicon"], "roles": manifest["roles"], "notes": manifest["notes"],
+        "hand_coded": None if hand_coded is None else {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
+        "settings": {"seed": config.seed, "summaries": summaries, "method": facts["method"], "rule": facts["rule"],
+                     "fdr_level": 0.05, "keyness_max_terms": 15},
+        "not_available": missing, "timings_seconds": stages.timings,
+        "versions": library_versions(("textkit", "numpy", "scipy", "pandas", "scikit-learn", "nltk", "statsmodels",
+                                      "matplotlib", "jinja2", "openpyxl", "wordcloud")),
+    }
+    return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages)
+
+
+def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
+    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none."""
+    from .io.export import bytes_writer, write_tree
+
+    return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
+                      report.manifest)
