@@ -476,10 +476,7 @@ def _report_statistics(survey: CodedSurvey):
     from .stats.estimate import DEFAULT_METHOD, DEFAULT_RULE, analyse
 
     roles = survey.roles
-    design = SurveyDesign.from_frame(
-        survey.coded, roles.get("weight"), roles.get("strata"), roles.get("cluster"), roles.get("fpc"),
-        roles.get("single_psu") or "error", wave=roles.get("wave"), id="response_id",
-        nest=bool(roles.get("nest", False)), source=str(survey.config.survey))
+    design = SurveyDesign.from_config(survey.config, survey.coded, id="response_id")
     analysis = analyse(survey.coded, list(survey.themes), design, groups=list(roles.get("groups") or []),
                        wave=roles.get("wave"), method=DEFAULT_METHOD, rule=DEFAULT_RULE)
     facts = {"method": DEFAULT_METHOD, "rule": f"{DEFAULT_RULE.name} ({DEFAULT_RULE.origin})",
