@@ -74,6 +74,12 @@ class CodedSurvey:
     manifest: dict = field(default_factory=dict)
 
     @property
+    def input_paths(self) -> list[Path]:
+        """The files this survey was coded from (config, survey file, lexicon), for the writer to protect."""
+        paths = (self.config.path, self.config.survey, self.lexicon.source)
+        return [Path(p) for p in paths if p and not str(p).startswith("<")]
+
+    @property
     def theme_matrix(self) -> sp.csr_matrix:
         """(n_rows, n_themes) int8 0/1 theme matrix aligned with ``coded`` rows."""
         return self.result.matrix
@@ -232,15 +238,18 @@ def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig)
     return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
 
 
-def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
-    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically."""
+def write_coded(survey: CodedSurvey, out_dir: str | Path, inputs: tuple = ()) -> list[Path]:
+    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically.
+
+    The writer refuses an ``out_dir`` that would replace the survey's inputs or any of ``inputs``.
+    """
     files = {
         "coded.csv": csv_writer(survey.coded),
         "coded.parquet": parquet_writer(survey.coded),
         "evidence.csv": csv_writer(survey.evidence),
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
     }
-    return write_outputs(out_dir, files, survey.manifest)
+    return write_outputs(out_dir, files, survey.manifest, inputs=[*survey.input_paths, *inputs])
 
 
 def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:

@@ -9,12 +9,12 @@ from pathlib import Path
 
 import click
 
-from .main import steps
+from .main import OUTPUT_FOLDER, SuggestingGroup, steps
 
 
 @click.command("code")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for coded.csv, coded.parquet, evidence.csv, coverage.csv, manifest.json.")
 @click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
               help="Use this lexicon instead of the one the config names.")
@@ -46,7 +46,7 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, quiet: 
                "sample before reporting.")
 
 
-@click.group("lexicon")
+@click.group("lexicon", cls=SuggestingGroup)
 def lexicon_group() -> None:
     """Check and inspect theme lexicons."""
 
@@ -87,7 +87,7 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
 @click.argument("hand_coded", type=click.Path(path_type=Path))
 @click.option("--lexicon", "lexicon_path", required=True, type=click.Path(path_type=Path),
               help="The lexicon to check.")
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for agreement.csv and disagreements.csv.")
 @click.option("--text-column", default="text", show_default=True, help="Column holding the answers.")
 @click.option("--codes-column", default="themes", show_default=True,
@@ -114,7 +114,8 @@ def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_
                 "hand_coded": {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
                 "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256}, "notes": notes}
     write_outputs(out_dir, {"agreement.csv": csv_writer(table, float_format="%.4f"),
-                            "disagreements.csv": csv_writer(disagreements)}, manifest)
+                            "disagreements.csv": csv_writer(disagreements)}, manifest,
+                  inputs=[hand_coded, lexicon_path])
     if quiet:
         return
     overall = table.iloc[-1]

@@ -13,6 +13,8 @@ from typing import Any
 
 import click
 
+from .main import OUTPUT_FOLDER
+
 
 def _load_coded(source: Path, quiet: bool) -> tuple[Any, dict, list[str], dict]:
     """(coded frame, roles, themes, input record) from a coded folder, coded file or config."""
@@ -31,18 +33,28 @@ def _load_coded(source: Path, quiet: bool) -> tuple[Any, dict, list[str], dict]:
     return frame, dict(manifest["roles"]), list(manifest["themes"]), record
 
 
+def _inputs(source: Path, record: dict) -> list:
+    """Every file and folder the result is read from (the writer refuses to replace any)."""
+    found = [source, record.get("coded", {}).get("path")]
+    if source.is_dir() or source.suffix.lower() not in (".yaml", ".yml"):
+        folder = source if source.is_dir() else source.parent
+        found.append(folder / "manifest.json")
+    return found
+
+
 @click.command("prevalence")
 @click.argument("coded_or_config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for prevalence.csv, comparisons.csv, group_tests.csv and manifest.json.")
 @click.option("--method", default=None, metavar="NAME",
               help="Interval method: korn-graubard (default, alias beta), logit or wilson.")
-@click.option("--confidence", default=0.95, show_default=True, type=float, help="Confidence level.")
+@click.option("--confidence", default=0.95, show_default=True,
+              type=click.FloatRange(0, 1, min_open=True, max_open=True), help="Confidence level.")
 @click.option("--rule", "rule_name", default=None, metavar="NAME",
               help="Publishing rule: nchs-like (default), abs-like or statcan-like.")
-@click.option("--min-base", type=int, default=None,
+@click.option("--min-base", type=click.IntRange(min=0), default=None,
               help="Override the rule: unweighted base below this is suppressed.")
-@click.option("--caution-rse", type=float, default=None,
+@click.option("--caution-rse", type=click.FloatRange(min=0, min_open=True), default=None,
               help="Override the rule: relative SE at or above this (e.g. 0.3) is flagged caution.")
 @click.option("--quiet", is_flag=True, help="Print nothing on success.")
 def prevalence_command(coded_or_config: Path, out_dir: Path, method: str | None, confidence: float,
@@ -96,7 +108,7 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, method: str | None,
         "counts": {"prevalence": len(table), "comparisons": len(comparisons), "group_tests": len(tests)},
     }
     write_outputs(out_dir, {"prevalence.csv": csv_writer(table), "comparisons.csv": csv_writer(comparisons),
-                            "group_tests.csv": csv_writer(tests)}, manifest)
+                            "group_tests.csv": csv_writer(tests)}, manifest, inputs=_inputs(coded_or_config, record))
     if not quiet:
         flags = table["flag"].value_counts()
         click.echo(f"{len(table)} estimates ({flags.get('ok', 0)} ok, {flags.get('caution', 0)} caution, "
