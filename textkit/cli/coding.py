@@ -98,16 +98,11 @@ def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_
     """Compare the lexicon's codes with HAND_CODED answers (precision, recall, F1, kappa)."""
     from ..coding.agreement import compare_with_hand_codes
     from ..coding.lexicon import load_lexicon
-    from ..errors import InputError
     from ..io.output import csv_writer, file_sha256, write_outputs
-    from ..io.readers import read_table
+    from ..io.readers import read_hand_codes
 
     lexicon = load_lexicon(lexicon_path)
-    frame, notes = read_table(hand_coded)
-    for column in (text_column, codes_column):
-        if column not in frame.columns:
-            raise InputError(f"no column '{column}'; the columns are: {', '.join(map(str, frame.columns))}",
-                             source=hand_coded, column=column)
+    frame, notes = read_hand_codes(hand_coded, text_column, codes_column, lexicon.ids)
     table, disagreements = compare_with_hand_codes(frame[text_column].tolist(), frame[codes_column].tolist(),
                                                    lexicon, source=str(hand_coded))
     manifest = {"command": "agreement",
