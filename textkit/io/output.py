@@ -278,13 +278,10 @@ def _temporary_folder(parent: Path, stem: str, out: Path) -> Path:
 
 
 def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Path]:
+    staging: Path | None = None
     try:
-        staging = _temporary_folder(out.parent, f".{out.name}", out)
-    except InputError:
-        if out.is_dir():  # the parent may be read-only while the folder itself is not
-            return _merge_into(out, plan)
-        raise
-    try:
+        with _signals_held():  # so that a signal cannot strike between creating and knowing the folder
+            staging = _temporary_folder(out.parent, f".{out.name}", out)
         _write_all(staging, plan, out)
         with _signals_held():
             if replace:
@@ -300,18 +297,23 @@ def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Pat
                 with contextlib.suppress(FileNotFoundError):
                     out.rmdir()  # an empty folder (anything else makes rmdir fail, and rename too)
                 os.rename(staging, out)
-    except OSError as error:
-        shutil.rmtree(staging, ignore_errors=True)
-        raise _fail(out, None, error) from None
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
+    except InputError:
+        if staging is None and out.is_dir():  # the parent may be read-only while the folder is not
+            return _merge_into(out, plan)
         raise
+    except OSError as error:
+        raise _fail(out, None, error) from None
+    finally:
+        if staging is not None:
+            shutil.rmtree(staging, ignore_errors=True)
     return [out / name for name in plan]
 
 
 def _merge_into(out: Path, plan: Mapping[str, Writer]) -> list[Path]:
-    staging = _temporary_folder(out, "", out)
+    staging: Path | None = None
     try:
+        with _signals_held():
+            staging = _temporary_folder(out, "", out)
         _write_all(staging, plan, out)
         with _signals_held():
             for name in plan:
@@ -319,7 +321,8 @@ def _merge_into(out: Path, plan: Mapping[str, Writer]) -> list[Path]:
     except OSError as error:
         raise _fail(out, None, error) from None
     finally:
-        shutil.rmtree(staging, ignore_errors=True)
+        if staging is not None:
+            shutil.rmtree(staging, ignore_errors=True)
     return [out / name for name in plan]
 
 
