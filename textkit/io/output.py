@@ -205,9 +205,11 @@ def write_outputs(out_dir: str | Path, files: Mapping[str, Writer], manifest: Ma
         command = full.get("command")
         plan["manifest.json"] = json_writer(full)
     _clean_stale(out)
+    sources = [Path(p).expanduser() for p in inputs if p is not None and str(p)]
+    _refuse_collisions(out, list(plan), sources, whole=False)
     mode = _mode(out, set(plan), command)
-    _refuse_collisions(out, list(plan), [Path(p).expanduser() for p in inputs if p is not None and str(p)],
-                       whole=mode != "merge")
+    if mode != "merge":
+        _refuse_collisions(out, list(plan), sources, whole=True)
     if mode == "merge":
         return _merge_into(out, plan)
     return _swap_into(out, plan, replace=mode == "replace")
