@@ -65,7 +65,7 @@ def coverage(n: int, reps: int, rng: np.random.Generator, confidence: float = 0.
     from textkit.stats.estimate import CI_METHODS, DEFAULT_RULE, confidence_interval, domain_totals
 
     frame = simulate(n, reps, rng)
-    design = SurveyDesign.from_frame(frame, "weight", "stratum", "psu", wave="rep", nest=True)
+    design = SurveyDesign.from_frame(frame, "weight", "stratum", "psu", wave="rep", cluster_ids_restart=True)
     themes = [f"theme_{j}" for j in range(len(PREVALENCES))]
     Y = sparse.csr_matrix(frame[themes].to_numpy(dtype=float))
     totals = domain_totals(Y, np.arange(len(frame)), design.wave, design.n_waves, design, diagonal=True)

@@ -9,7 +9,7 @@ Builds invented answers (~25 words each, Zipf-distributed vocabulary of
 8,000 words plus the shipped stop words, each group with a few planted
 phrases), tokenises them once, builds the one sparse document-term matrix
 (unigrams to trigrams, document frequency) and computes all group-vs-rest
-tables with :func:`textkit.keyness.compare` (weighted). Prints the time of
+tables with :func:`textkit.discover.keyness.compare` (weighted). Prints the time of
 each stage, the peak resident memory of the process, and whether the planted
 phrases rank first for their group.
 
@@ -95,7 +95,7 @@ def main(argv: list[str] | None = None) -> int:
           f"vocabulary {len(stream.vocabulary):,}")
     print(f"terms (>= {args.min_respondents} answers) {len(terms):,}, matrix nnz {matrix.nnz:,}")
     print(f"generate texts        {generated - started:7.2f} s")
-    print(f"tokenise (text.py)    {tokenised - generated:7.2f} s")
+    print(f"tokenise (text.tokens) {tokenised - generated:7.2f} s")
     print(f"document-term matrix  {built - tokenised:7.2f} s")
     print(f"all group-vs-rest     {compared - built:7.2f} s  ({summary['comparisons']} comparisons, "
           f"{len(table):,} rows)")

@@ -63,9 +63,9 @@ SITES = {
     "GUL": "Gullwhistle Cove",
 }
 SEASONS: tuple[str, ...] = ("summer", "shoulder")
-MARKETS: tuple[str, ...] = ("Domestic", "Norvania", "Estrelia", "Vossland", "Caldoria", "Tessary")
+MARKETS: tuple[str, ...] = ("Domestic", "Norvania", "Estrelia", "Vossland", "Duvenia", "Tessary")
 LANGUAGE_OF = {"Domestic": "English", "Norvania": "Norvanian", "Estrelia": "Estrelian",
-               "Vossland": "Vosslandic", "Caldoria": "Caldorian", "Tessary": "Tessarian"}
+               "Vossland": "Vosslandic", "Duvenia": "Duvenian", "Tessary": "Tessarian"}
 AGE_BANDS: tuple[str, ...] = ("16-34", "35-54", "55+")
 PURPOSES: tuple[str, ...] = ("holiday", "family holiday", "day trip", "visiting friends or relatives",
                              "business or event")
@@ -189,14 +189,14 @@ RULES: list[tuple[str, str, dict[str, str], float]] = [
     ("high_point", "history_culture", {"market": "Tessary"}, 1.5),
     ("high_point", "nature_wildlife", {"site": "GUL"}, 1.2),
     ("high_point", "nature_wildlife", {"site": "KEL"}, 0.75),
-    ("high_point", "food_drink", {"market": "Caldoria"}, 1.4),
-    # drones: wave 2026 only; beaches, summer, Caldoria
+    ("high_point", "food_drink", {"market": "Duvenia"}, 1.4),
+    # drones: wave 2026 only; beaches, summer, Duvenia
     ("low_point", "drones", {"wave": "2026"}, 1.0),
 ]
 DRONE_BASE_2026 = 0.045
 DRONE_RULES: list[tuple[dict[str, str], float]] = [
     ({"site": "PEL"}, 1.7), ({"site": "GUL"}, 2.2), ({"site": "KEL"}, 0.5),
-    ({"season": "summer"}, 1.3), ({"market": "Caldoria"}, 1.6),
+    ({"season": "summer"}, 1.3), ({"market": "Duvenia"}, 1.6),
 ]
 
 # Interview-shift shocks: (probability of a bad shift, multiplier on a bad shift); the other
@@ -435,9 +435,9 @@ def population_cells() -> pd.DataFrame:
                                      * purpose[p]))
     cells = pd.DataFrame(rows, columns=["wave", "site", "season", "market", "age_band", "trip_purpose",
                                         "population"])
-    # response propensity: young, business and Caldorian visitors answer less often
+    # response propensity: young, business and Duvenian visitors answer less often
     cells["propensity"] = (cells["age_band"].map({"16-34": 0.5, "35-54": 0.8, "55+": 1.0})
-                           * cells["market"].map(lambda m: {"Domestic": 1.0, "Caldoria": 0.55}.get(m, 0.85))
+                           * cells["market"].map(lambda m: {"Domestic": 1.0, "Duvenia": 0.55}.get(m, 0.85))
                            * cells["trip_purpose"].map(lambda t: 0.65 if t == "business or event" else 1.0))
     return cells
 

@@ -65,12 +65,12 @@ def make_project(folder: Path, n: int = 80, seed: int = 7, rows: list[dict] | No
     rng = random.Random(seed + 1)
     with open(folder / "hand.csv", "w", encoding="utf-8", newline="") as handle:
         writer = csv.writer(handle)
-        writer.writerow(["text", "themes"])
-        for _ in range(30):
+        writer.writerow(["response_id", "question", "text", "themes"])
+        for i in range(30):
             text = answer(rng)
             codes = [t for t, words in (("queues", ("queue", "wait")), ("cost", ("expensive", "price")),
                                         ("staff", ("staff", "rude"))) if any(w in text.lower() for w in words)]
-            writer.writerow([text, ";".join(codes)])
+            writer.writerow([f"H{i:03d}", "low_point", text, ";".join(codes)])
     return folder / "survey.yaml"
 
 

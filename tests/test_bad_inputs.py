@@ -137,10 +137,11 @@ BAD_LEXICONS: dict[str, Setup] = {
     "lexicon missing": lambda folder: (folder / "lexicon.yaml").unlink(),
 }
 BAD_HAND_CODES: dict[str, Setup] = {
-    "hand code 2": put("hand.csv", "text,themes\nlong queue,queues\nrude staff,2\n"),
-    "hand code yes": put("hand.csv", "text,themes\nlong queue,yes\n"),
-    "hand code no": put("hand.csv", "text,themes\nlong queue,queues;no\n"),
-    "hand codes column missing": put("hand.csv", "text,codes\nlong queue,queues\n"),
+    "hand code 2": put("hand.csv", "response_id,question,text,themes\nH1,low_point,long queue,queues\n"
+                                   "H2,low_point,rude staff,2\n"),
+    "hand code yes": put("hand.csv", "response_id,question,text,themes\nH1,low_point,long queue,yes\n"),
+    "hand code no": put("hand.csv", "response_id,question,text,themes\nH1,low_point,long queue,queues;no\n"),
+    "hand codes without ids": put("hand.csv", "text,themes\nlong queue,queues\n"),
 }
 
 CONFIG_COMMANDS = {

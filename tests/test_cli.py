@@ -65,7 +65,7 @@ def test_demo_job_writes_the_four_tables_and_a_manifest(demo_run):
     lexicon_ids = json.loads((out / "manifest.json").read_text())["themes"]
     assert len(lexicon_ids) >= 25
     expected = ["response_id", "question", "weight", "stratum", "psu", "wave", "market", "age_band",
-                "trip_purpose", "answered", *lexicon_ids, "n_themes", "uncoded"]
+                "trip_purpose", "site", "season", "answered", *lexicon_ids, "n_themes", "uncoded"]
     assert list(coded.columns) == expected
     assert len(coded) == 2 * coded["response_id"].nunique() >= 12_000
     assert set(coded["question"]) == {"low_point", "high_point"}
@@ -207,7 +207,10 @@ def test_agreement_command_writes_tables(tmp_path, capsys):
                            str(LEXICON), "--out", str(tmp_path)], capsys)
     assert code == 0 and "kappa" in stdout
     table = pd.read_csv(tmp_path / "agreement.csv")
-    assert table["theme"].iloc[-1] == "(all)"
+    assert table["theme"].tolist()[-3:] == ["(no theme)", "(micro)", "(macro)"]
+    # intervals were drawn (1,000 resamples by default) and hold the point estimate
+    micro = table.set_index("theme").loc["(micro)"]
+    assert micro.f1_low < micro.f1 < micro.f1_high
 
 
 def test_prevalence_from_the_coded_folder(demo_run, tmp_path, capsys):

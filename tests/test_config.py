@@ -27,7 +27,7 @@ design:
   strata: stratum
   cluster: psu
   fpc: stratum_population
-  single_psu: centre
+  one_cluster_stratum: centre
 wave: wave
 groups: [market, age_band, stratum]
 lexicon: ../lexicons/harbour.yaml
@@ -67,7 +67,7 @@ def test_full_config_fields_and_relative_paths(tmp_path):
                                               ("high_point", "high_point_text")]
     assert (config.weight, config.strata, config.cluster, config.fpc) == (
         "weight", "stratum", "psu", "stratum_population")
-    assert config.single_psu == "centre"
+    assert config.one_cluster_stratum == "centre"
     assert config.wave == "wave"
     assert config.groups == ("market", "age_band", "stratum")
     assert config.seed == 20261202
@@ -77,9 +77,9 @@ def test_full_config_fields_and_relative_paths(tmp_path):
 def test_roles_are_json_serialisable_and_design_columns_unique(tmp_path):
     config = load_config(write(tmp_path, FULL))
     roles = config.roles()
-    assert set(roles) == {"id", "questions", "weight", "strata", "cluster", "fpc", "single_psu", "nest",
-                          "wave", "groups"}
-    assert roles["single_psu"] == config.single_psu and roles["nest"] is False
+    assert set(roles) == {"id", "questions", "weight", "strata", "cluster", "fpc", "one_cluster_stratum",
+                          "cluster_ids_restart", "wave", "groups", "nets", "question_text"}
+    assert roles["one_cluster_stratum"] == config.one_cluster_stratum and roles["cluster_ids_restart"] is False
     assert json.loads(json.dumps(roles)) == roles
     assert roles["groups"] == ["market", "age_band", "stratum"]
     # stratum is both a design column and a group: listed once
@@ -91,8 +91,8 @@ def test_defaults(tmp_path):
     config = load_config(write(tmp_path, MINIMAL))
     assert config.questions == {"comment": "comment"}
     assert config.weight is None and config.strata is None and config.fpc is None
-    assert config.single_psu == "error"
-    assert config.nest is False
+    assert config.one_cluster_stratum == "refuse"
+    assert config.cluster_ids_restart is False
     assert config.groups == ()
     assert config.lexicon is None
     assert config.seed == 0
@@ -148,7 +148,8 @@ def test_utf8_bom_config_is_read(tmp_path):
     (MINIMAL + "groups: {a: b}\n", 4, ["'groups'"]),
     (MINIMAL + "groups: [a, b, a]\n", 4, ["listed twice"]),
     (MINIMAL + "design: [strata]\n", 4, ["'design' must be a mapping"]),
-    (MINIMAL + "design:\n  single_psu: average\n", 5, ["single_psu", "error, centre, collapse", "average"]),
+    (MINIMAL + "design:\n  one_cluster_stratum: average\n", 5,
+     ["one_cluster_stratum", "refuse, centre, merge", "average"]),
     (MINIMAL + "lexicon: 3\n", 4, ["'lexicon'"]),
     (MINIMAL + "non_answers: [[n/a]]\n", 4, ["'non_answers'"]),
     ("survey: v.doc\nid: rid\nquestions: [c]\n", 1, ["unknown file type '.doc'"]),
@@ -229,7 +230,7 @@ def test_config_from_mapping_matches_load_config(tmp_path):
         "questions": {"low_point": "low_point_text", "high_point": "high_point_text"},
         "weight": "weight",
         "design": {"strata": "stratum", "cluster": "psu", "fpc": "stratum_population",
-                   "single_psu": "centre"},
+                   "one_cluster_stratum": "centre"},
         "wave": "wave", "groups": ["market", "age_band", "stratum"],
         "lexicon": "../lexicons/harbour.yaml", "seed": 20261202,
         "non_answers": ["N/A", "  No   Comment ", "-"],
@@ -259,9 +260,9 @@ def test_normalise_answer():
 
 
 def test_design_nest_flag(tmp_path):
-    text = MINIMAL + "design:\n  nest: true\n"
-    assert load_config(write(tmp_path, text)).nest is True
-    bad = MINIMAL + "design:\n  nest: sometimes\n"
-    with pytest.raises(InputError, match=r"design.nest' must be true or false") as info:
+    text = MINIMAL + "design:\n  cluster_ids_restart: true\n"
+    assert load_config(write(tmp_path, text)).cluster_ids_restart is True
+    bad = MINIMAL + "design:\n  cluster_ids_restart: sometimes\n"
+    with pytest.raises(InputError, match=r"design.cluster_ids_restart' must be true or false") as info:
         load_config(write(tmp_path, bad))
     assert info.value.line == bad.count("\n")

@@ -29,7 +29,7 @@ def test_no_design_every_response_is_its_own_psu():
 
 
 def test_nested_cluster_ids_are_relabelled_per_stratum():
-    design = SurveyDesign.from_frame(frame(), "weight", "stratum", "psu", nest=True)
+    design = SurveyDesign.from_frame(frame(), "weight", "stratum", "psu", cluster_ids_restart=True)
     assert design.n_psus == 4 and design.n_strata == 2 and design.df == 2
     assert list(design.stratum_psus) == [2, 2]
 
@@ -45,7 +45,7 @@ def test_bad_weights_name_row_and_column(bad, word):
     data = frame()
     data.loc[2, "weight"] = bad
     with pytest.raises(DesignError, match=word) as error:
-        SurveyDesign.from_frame(data, "weight", "stratum", "psu", nest=True)
+        SurveyDesign.from_frame(data, "weight", "stratum", "psu", cluster_ids_restart=True)
     assert error.value.row == 3 and error.value.column == "weight"
 
 
@@ -54,10 +54,10 @@ def test_single_psu_stratum_policies():
     data["psu"] = [1, 2, 3, 4, 4, 4]          # south has one PSU
     with pytest.raises(DesignError, match="'south' has only one PSU"):
         SurveyDesign.from_frame(data, "weight", "stratum", "psu")
-    centred = SurveyDesign.from_frame(data, "weight", "stratum", "psu", single_psu="centre")
+    centred = SurveyDesign.from_frame(data, "weight", "stratum", "psu", one_cluster_stratum="centre")
     scale, centre = centred.variance_factors()
     assert centred.n_strata == 2 and scale[1] == 1.0 and centre[1] == 0.0
-    collapsed = SurveyDesign.from_frame(data, "weight", "stratum", "psu", single_psu="collapse")
+    collapsed = SurveyDesign.from_frame(data, "weight", "stratum", "psu", one_cluster_stratum="merge")
     assert collapsed.n_strata == 1 and collapsed.stratum_labels == ("north+south",)
     assert collapsed.df == 4 - 1
 
@@ -73,27 +73,27 @@ def test_strata_without_clusters_when_clusters_are_required():
 def test_long_table_is_reduced_to_responses_and_must_agree():
     data = frame()
     long = pd.concat([data.assign(question="a"), data.assign(question="b")], ignore_index=True)
-    design = SurveyDesign.from_frame(long, "weight", "stratum", "psu", id="response_id", nest=True)
+    design = SurveyDesign.from_frame(long, "weight", "stratum", "psu", id="response_id", cluster_ids_restart=True)
     assert design.n_units == 6 and design.ids == tuple(data["response_id"])
     long.loc[7, "weight"] = 9.0
     with pytest.raises(DesignError, match="differs between rows of response 'r2'"):
-        SurveyDesign.from_frame(long, "weight", "stratum", "psu", id="response_id", nest=True)
+        SurveyDesign.from_frame(long, "weight", "stratum", "psu", id="response_id", cluster_ids_restart=True)
 
 
 def test_fpc_population_sizes_and_errors():
     data = frame()
     data["population"] = [10, 10, 10, 4, 4, 4]
-    design = SurveyDesign.from_frame(data, "weight", "stratum", "psu", "population", nest=True)
+    design = SurveyDesign.from_frame(data, "weight", "stratum", "psu", "population", cluster_ids_restart=True)
     # f_h = 1 - n_h / N_h (Wolter 2007): 2 of 10 and 2 of 4 PSUs sampled
     assert design.stratum_fpc == pytest.approx([0.8, 0.5])
     data.loc[5, "population"] = 5
     with pytest.raises(DesignError, match="differs within stratum"):
-        SurveyDesign.from_frame(data, "weight", "stratum", "psu", "population", nest=True)
+        SurveyDesign.from_frame(data, "weight", "stratum", "psu", "population", cluster_ids_restart=True)
 
 
 def test_waves_are_crossed_with_strata():
     data = pd.concat([frame().assign(wave=2025), frame().assign(wave=2026)], ignore_index=True)
-    design = SurveyDesign.from_frame(data, "weight", "stratum", "psu", wave="wave", nest=True)
+    design = SurveyDesign.from_frame(data, "weight", "stratum", "psu", wave="wave", cluster_ids_restart=True)
     assert design.n_strata == 4 and design.n_psus == 8
     assert list(design.wave_df()) == [2, 2] and design.df == 4
 
@@ -102,5 +102,5 @@ def test_missing_column_and_unknown_policy():
     with pytest.raises(DesignError, match="not in the data") as error:
         SurveyDesign.from_frame(frame(), "wt")
     assert error.value.column == "wt"
-    with pytest.raises(DesignError, match="single_psu must be one of"):
-        SurveyDesign.from_frame(frame(), single_psu="skip")
+    with pytest.raises(DesignError, match="one_cluster_stratum must be one of"):
+        SurveyDesign.from_frame(frame(), one_cluster_stratum="skip")

@@ -13,8 +13,8 @@ from textkit.errors import AnalysisError, DesignError, TextkitError
 from textkit.stats.design import SurveyDesign
 from textkit.stats.estimate import (
     ALL,
+    BASE_WIDTH_RULE,
     COMPARISON_COLUMNS,
-    NCHS_LIKE,
     PREVALENCE_COLUMNS,
     REST,
     ReliabilityRule,
@@ -45,7 +45,7 @@ def nhanes() -> pd.DataFrame:
 
 @pytest.fixture(scope="module")
 def nhanes_design(nhanes) -> SurveyDesign:
-    return SurveyDesign.from_frame(nhanes, "finalwgt", "stratid", "psuid", id="response_id", nest=True)
+    return SurveyDesign.from_frame(nhanes, "finalwgt", "stratid", "psuid", id="response_id", cluster_ids_restart=True)
 
 
 def samplics_prop(data, y, domain=None, fpc=1.0):
@@ -84,7 +84,7 @@ def test_matches_samplics_overall_and_by_domain_on_nhanes2(nhanes, nhanes_design
 def test_matches_samplics_with_finite_population_correction(nhanes):
     data = nhanes.assign(population=nhanes["stratid"].map(lambda h: 4 + h % 5))
     design = SurveyDesign.from_frame(data, "finalwgt", "stratid", "psuid", "population",
-                                     id="response_id", nest=True)
+                                     id="response_id", cluster_ids_restart=True)
     table = prevalence(data, ["highbp"], design, method="logit", answered_column=None)
     # samplics takes the fpc factor (1 - n_h/N_h) per stratum
     factor = {h: 1 - 2 / (4 + h % 5) for h in sorted(data["stratid"].unique())}
@@ -220,7 +220,7 @@ def test_benjamini_hochberg_published_example():
 # ------------------------------------------------------------------ invariances
 def test_scaling_weights_changes_nothing(nhanes, nhanes_design):
     scaled = nhanes.assign(finalwgt=nhanes["finalwgt"] * 0.37)
-    design = SurveyDesign.from_frame(scaled, "finalwgt", "stratid", "psuid", id="response_id", nest=True)
+    design = SurveyDesign.from_frame(scaled, "finalwgt", "stratid", "psuid", id="response_id", cluster_ids_restart=True)
     one = prevalence(nhanes, ["highbp"], nhanes_design, groups=["race"], answered_column=None)
     two = prevalence(scaled, ["highbp"], design, groups=["race"], answered_column=None)
     for column in ("estimate", "se", "ci_low", "ci_high", "n_eff", "deff"):
@@ -230,7 +230,8 @@ def test_scaling_weights_changes_nothing(nhanes, nhanes_design):
 def test_duplicating_every_psu_shrinks_the_variance_exactly(nhanes, nhanes_design):
     copy = nhanes.assign(psuid=nhanes["psuid"] + 2, response_id=nhanes["response_id"] + len(nhanes))
     doubled = pd.concat([nhanes, copy], ignore_index=True)
-    design = SurveyDesign.from_frame(doubled, "finalwgt", "stratid", "psuid", id="response_id", nest=True)
+    design = SurveyDesign.from_frame(doubled, "finalwgt", "stratid", "psuid", id="response_id",
+                                     cluster_ids_restart=True)
     one = prevalence(nhanes, ["highbp"], nhanes_design, groups=["race"], answered_column=None)
     two = prevalence(doubled, ["highbp"], design, groups=["race"], answered_column=None)
     # half the variance, up to the n_h/(n_h-1) factors: (n_h-1)/(2n_h-1) = 1/3 with n_h = 2
@@ -309,7 +310,7 @@ def test_reliability_rule_thresholds():
     # RSE on the smaller share: 0.02 / 0.05 = 40% for both 0.05 and 0.95
     assert list(flags) == ["suppress", "ok", "caution", "caution"]
     # NCHS 2017 style: a 0.35-wide interval is suppressed; relative width 0.08/0.05 > 130% too
-    nchs = NCHS_LIKE.flags([500, 500], [0.5, 0.05], [0.01, 0.01], [0.3, 0.02], [0.65, 0.1], [50, 50],
+    nchs = BASE_WIDTH_RULE.flags([500, 500], [0.5, 0.05], [0.01, 0.01], [0.3, 0.02], [0.65, 0.1], [50, 50],
                            [500, 500])
     assert list(nchs) == ["suppress", "suppress"]
 
@@ -348,7 +349,7 @@ def test_cli_writes_the_three_tables(tmp_path):
     folder.mkdir()
     coded.to_parquet(folder / "coded.parquet")
     roles = {"id": "response_id", "weight": "weight", "strata": "zone", "cluster": "site", "fpc": None,
-             "single_psu": "error", "wave": "wave", "groups": ["market"]}
+             "single_psu": "error", "wave": "wave", "groups": ["market"]}  # a manifest from before the rename
     (folder / "manifest.json").write_text(json.dumps({"roles": roles, "themes": ["parking", "staff"]}))
     result = CliRunner().invoke(prevalence_command, [str(folder), "--out", str(tmp_path / "out"), "--quiet"])
     assert result.exit_code == 0, result.output

@@ -100,7 +100,7 @@ def test_a_swap_cut_short_is_put_back(tmp_path):
     retired = tmp_path / ".out.textkit-999999999-old-abc"  # a process id that cannot be running
     out.rename(retired)
     (tmp_path / ".out.textkit-999999999-new-abc").mkdir()
-    with pytest.raises(InputError, match="holds the input"):  # refused, after the clean-up
+    with pytest.raises(InputError, match="would replace the input"):  # refused, after the clean-up
         write_outputs(out, {"a.csv": csv_writer(pd.DataFrame({"x": [2]}))}, {"command": "test"},
                       inputs=[out / "a.csv"])
     assert _files(out) == old and not _staging(tmp_path, "out")
@@ -207,7 +207,8 @@ def test_no_output_cell_starts_with_a_trigger(tmp_path):
     config.write_text(config_text(survey="survey.parquet"), encoding="utf-8")
     hand = tmp_path / "project" / "hand.csv"
     with open(hand, "a", encoding="utf-8", newline="") as handle:
-        csv.writer(handle).writerows([[trigger, "queues"] for trigger in TRIGGER_TEXTS])
+        csv.writer(handle).writerows([[f"{trigger}{i}", "low_point", trigger, "queues"]
+                                      for i, trigger in enumerate(TRIGGER_TEXTS)])
     outs = {name: tmp_path / name for name in ("coded", "stats", "keyness", "suggest", "agreement")}
     assert main(["code", str(config), "--out", str(outs["coded"]), "--quiet"]) == 0
     assert main(["prevalence", str(outs["coded"]), "--out", str(outs["stats"]), "--quiet"]) == 0

@@ -58,6 +58,11 @@ class CodedSurvey:
         Things the user should know (encoding fallbacks, zero weights...).
     manifest : dict
         Inputs' hashes and settings that reproduce the run.
+    extra_tables : dict of str to DataFrame
+        More files for the output folder (``corrections_applied.csv`` ...).
+
+    With a corrections file, ``coded`` also has ``source`` (``lexicon`` or
+    ``correction``) and ``corrected_themes`` (the row's corrected cells).
 
     ``theme_matrix``, ``stream``, ``themes`` and ``roles`` are read from
     ``result`` and ``config``.
@@ -72,6 +77,14 @@ class CodedSurvey:
     result: CodingResult
     notes: list[str] = field(default_factory=list)
     manifest: dict = field(default_factory=dict)
+    extra_tables: dict = field(default_factory=dict)
+
+    def text_lookup(self, keys: pd.DataFrame) -> list[str | None]:
+        """The answer text of each (``response_id``, ``question``) row of ``keys`` (None when absent)."""
+        index = pd.MultiIndex.from_arrays([self.coded["response_id"].astype(str), self.coded["question"]])
+        rows = index.get_indexer(pd.MultiIndex.from_arrays([keys["response_id"].astype(str), keys["question"]]))
+        texts = self.texts.to_numpy(dtype=object)
+        return [texts[r] if r >= 0 else None for r in rows.tolist()]
 
     @property
     def input_paths(self) -> list[Path]:
@@ -104,7 +117,7 @@ def _no_progress(step: str) -> None:
 
 
 def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
-                progress: Callable[[str], None] | None = None) -> CodedSurvey:
+                progress: Callable[[str], None] | None = None, apply_corrections: bool = True) -> CodedSurvey:
     """Read a survey and code every answer of every open question.
 
     Parameters
@@ -115,6 +128,9 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
         Overrides the config's ``lexicon``.
     progress : callable, optional
         Called with the name of each step as it starts (the CLI draws a bar).
+    apply_corrections : bool, default True
+        Apply the corrections file the config names (see :func:`apply_configured_corrections`);
+        False gives the lexicon's codes alone (to score or compare lexicons).
 
     Raises
     ------
@@ -158,6 +174,9 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
 
     step("assembling tables")
     coded = _coded_table(frame, config, questions, answered, result)
+    corrections = None
+    if apply_corrections and config.corrections is not None:
+        coded, corrections = apply_configured_corrections(coded, result, lex, config)
     evidence = _evidence_table(coded, result)
     coverage = _coverage_table(coded, lex, config)
     manifest = {
@@ -173,9 +192,56 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
                    "evidence": len(evidence), "dropped_matches": result.dropped},
         "notes": list(data.notes),
     }
+    notes = list(data.notes)
+    if corrections is not None:
+        manifest["corrections"] = corrections["manifest"]
+        notes += corrections["notes"]
     return CodedSurvey(coded=coded, texts=pd.Series(raw_texts, name="text"), evidence=evidence,
                        coverage=coverage, lexicon=lex, config=config, result=result,
-                       notes=list(data.notes), manifest=manifest)
+                       notes=notes, manifest=manifest,
+                       extra_tables=corrections["tables"] if corrections is not None else {})
+
+
+def apply_configured_corrections(coded: pd.DataFrame, result: CodingResult, lexicon: Lexicon,
+                                 config: SurveyConfig) -> tuple[pd.DataFrame, dict]:
+    """Read the config's corrections file and apply it to ``coded`` (after automated coding).
+
+    Returns the corrected table and a dict with ``manifest`` (the file's hash, how many
+    corrections were applied and how many codes they changed, those that fit no
+    answer), ``notes`` and ``tables`` (``corrections_applied.csv`` and, when some fit no
+    answer, ``corrections_unmatched.csv``).
+    """
+    from .coding.corrections import apply_corrections, check_corrections, corrections_from_frame
+    from .io.workbook import read_coding_file, workbook_sheet_names
+
+    path = config.corrections
+    if not path.exists():
+        raise InputError("corrections file not found (named by 'corrections' in the survey config)",
+                         source=path)
+    if path.suffix.lower() in (".xlsx", ".xlsm") and {"review", "corrections"} & set(workbook_sheet_names(path)):
+        parts = read_coding_file(path, optional_sheets=("review", "corrections"))
+    else:
+        parts = read_coding_file(path)
+    frames = [corrections_from_frame(p.frame, p.place, review_sheet=p.sheet == "review") for p in parts]
+    table = pd.concat(frames, ignore_index=True) if frames else corrections_from_frame(
+        pd.DataFrame(columns=["response_id", "question", "theme", "code"]), str(path))
+    check_corrections(table, lexicon.ids, list(config.questions))
+    outcome = apply_corrections(coded, result.direct, lexicon, table)
+    notes = [f"corrections: {len(outcome.applied)} cells set by {path.name}, {outcome.changed} codes changed"]
+    if len(outcome.unmatched):
+        ids = ", ".join(outcome.unmatched["response_id"].head(5))
+        notes.append(f"corrections: {len(outcome.unmatched)} fit no answered response ({ids}...); listed in "
+                     "corrections_unmatched.csv")
+    if outcome.undecided:
+        notes.append(f"corrections: {outcome.undecided} rows with a blank code left out (blank = not decided)")
+    manifest = {"path": str(path), "sha256": file_sha256(path), "rows": len(table),
+                "cells": len(outcome.applied), "codes_changed": outcome.changed,
+                "unmatched": len(outcome.unmatched), "undecided": outcome.undecided,
+                "superseded": outcome.superseded}
+    tables = {"corrections_applied.csv": outcome.applied}
+    if len(outcome.unmatched):
+        tables["corrections_unmatched.csv"] = outcome.unmatched
+    return outcome.coded, {"manifest": manifest, "notes": notes, "tables": tables}
 
 
 def _coded_table(frame: pd.DataFrame, config: SurveyConfig, questions: list[str], answered: np.ndarray,
@@ -248,6 +314,7 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path, inputs: tuple = ()) ->
         "coded.parquet": parquet_writer(survey.coded),
         "evidence.csv": csv_writer(survey.evidence),
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
+        **{name: csv_writer(table) for name, table in survey.extra_tables.items()},
     }
     return write_outputs(out_dir, files, survey.manifest, inputs=[*survey.input_paths, *inputs])
 

@@ -10,6 +10,7 @@ from pathlib import Path
 import click
 
 from .main import OUTPUT_FOLDER, SuggestingGroup, steps
+from .review import lexicon_diff_command
 
 
 @click.command("code")
@@ -51,6 +52,9 @@ def lexicon_group() -> None:
     """Check and inspect theme lexicons."""
 
 
+lexicon_group.add_command(lexicon_diff_command)
+
+
 @lexicon_group.command("check")
 @click.argument("lexicon", type=click.Path(path_type=Path))
 @click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
@@ -85,38 +89,81 @@ def lexicon_check_command(lexicon: Path, config: Path | None, quiet: bool) -> No
 
 @click.command("agreement")
 @click.argument("hand_coded", type=click.Path(path_type=Path))
-@click.option("--lexicon", "lexicon_path", required=True, type=click.Path(path_type=Path),
-              help="The lexicon to check.")
+@click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
+              help="The lexicon to check (default: the one the --survey config names).")
+@click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
+              help="Survey config: check every hand-coded id is in it and take the answers' text from it.")
 @click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
-              help="Folder for agreement.csv and disagreements.csv.")
+              help="Folder for agreement.csv, disagreements.csv (and coder_alpha.csv, coder_pairs.csv).")
+@click.option("--sheet", default=None, help="Workbook sheet holding the codes (default: the first).")
 @click.option("--text-column", default="text", show_default=True, help="Column holding the answers.")
 @click.option("--codes-column", default="themes", show_default=True,
-              help="Column holding the hand codes (theme ids separated by ';').")
+              help="Long form: column holding the hand codes (theme ids separated by ';').")
+@click.option("--resamples", default=1000, show_default=True, type=click.IntRange(0, 100_000),
+              help="Bootstrap resamples for the 95% intervals (0: none).")
+@click.option("--seed", default=0, show_default=True, type=int, help="Seed of the bootstrap.")
 @click.option("--quiet", is_flag=True, help="No summary.")
-def agreement_command(hand_coded: Path, lexicon_path: Path, out_dir: Path, text_column: str,
-                      codes_column: str, quiet: bool) -> None:
-    """Compare the lexicon's codes with HAND_CODED answers (precision, recall, F1, kappa)."""
-    from ..coding.agreement import compare_with_hand_codes
-    from ..coding.lexicon import load_lexicon
-    from ..io.output import csv_writer, file_sha256, write_outputs
-    from ..io.readers import read_hand_codes
+def agreement_command(hand_coded: Path, lexicon_path: Path | None, config: Path | None, out_dir: Path,
+                      sheet: str | None, text_column: str, codes_column: str, resamples: int, seed: int,
+                      quiet: bool) -> None:
+    """Compare the lexicon's codes with HAND_CODED answers, and hand coders with each other.
 
-    lexicon = load_lexicon(lexicon_path)
-    frame, notes = read_hand_codes(hand_coded, text_column, codes_column, lexicon.ids)
-    table, disagreements = compare_with_hand_codes(frame[text_column].tolist(), frame[codes_column].tolist(),
-                                                   lexicon, source=str(hand_coded))
+    HAND_CODED is a CSV or workbook: the wide sheet 'textkit sample' writes (one 0/1 column
+    per theme, blank = not coded) or the long form (theme ids joined by ';' in one column).
+    """
+    from ..coding.agreement import evaluate_hand_codes
+    from ..coding.handcodes import check_ids_in_survey, hand_codes_from_frame
+    from ..coding.lexicon import load_lexicon
+    from ..errors import InputError
+    from ..io.output import csv_writer, file_sha256, write_outputs
+    from ..io.readers import check_hand_code_ids
+    from ..io.workbook import read_coding_file
+
+    if lexicon_path is None and config is None:
+        raise InputError("give --lexicon or --survey (whose config names the lexicon)", column="--lexicon")
+    part = read_coding_file(hand_coded, sheets=[sheet] if sheet else ())[0]
+    check_hand_code_ids(part.frame, codes_column, part.place)
+    texts = None
+    if config is not None:
+        from ..pipeline import code_survey
+
+        survey = code_survey(config, lexicon=lexicon_path, apply_corrections=False)
+        lexicon = survey.lexicon
+        hand = hand_codes_from_frame(part.frame, lexicon, part.place, codes_column=codes_column,
+                                     text_column=text_column)
+        check_ids_in_survey(hand, survey.coded, part.place)
+        texts = survey.text_lookup(hand.keys)
+    else:
+        lexicon = load_lexicon(lexicon_path)
+        hand = hand_codes_from_frame(part.frame, lexicon, part.place, codes_column=codes_column,
+                                     text_column=text_column)
+        if text_column not in part.frame.columns:
+            raise InputError(f"no column '{text_column}' with the answers; add it or give --survey",
+                             source=part.place, column=text_column)
+    report = evaluate_hand_codes(hand, lexicon, texts=texts, n_resamples=resamples, seed=seed)
+    files = {"agreement.csv": csv_writer(report.table, float_format="%.4f"),
+             "disagreements.csv": csv_writer(report.disagreements)}
+    if len(report.coders) > 1:
+        files["coder_alpha.csv"] = csv_writer(report.alpha, float_format="%.4f")
+        files["coder_pairs.csv"] = csv_writer(report.pairs, float_format="%.4f")
     manifest = {"command": "agreement",
-                "hand_coded": {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
-                "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256}, "notes": notes}
-    write_outputs(out_dir, {"agreement.csv": csv_writer(table, float_format="%.4f"),
-                            "disagreements.csv": csv_writer(disagreements)}, manifest,
-                  inputs=[hand_coded, lexicon_path])
+                "hand_coded": {"path": str(hand_coded), "sha256": file_sha256(hand_coded), "sheet": part.sheet},
+                "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256},
+                "settings": {"resamples": resamples, "seed": seed}, "coders": report.coders,
+                "notes": report.notes}
+    write_outputs(out_dir, files, manifest, inputs=[hand_coded, lexicon_path, config, lexicon.source])
     if quiet:
         return
-    overall = table.iloc[-1]
-    click.echo(f"{len(frame)} hand-coded answers: precision {overall.precision:.2f}, recall "
-               f"{overall.recall:.2f}, F1 {overall.f1:.2f}, kappa {overall.kappa:.2f} over all theme decisions")
-    weak = table[(table["theme"] != "(all)") & (table["hand"] >= 5) & (table["f1"].fillna(0) < 0.7)]
+    for note in report.notes:
+        click.echo(f"note: {note}", err=True)
+    micro = report.table.set_index("theme").loc["(micro)"]
+    click.echo(f"{len(hand.keys)} hand-coded rows: precision {micro.precision:.2f}, recall {micro.recall:.2f}, "
+               f"F1 {micro.f1:.2f}, kappa {micro.kappa:.2f} over all theme decisions")
+    themes = report.table[~report.table["theme"].str.startswith("(")]
+    weak = themes[(themes["hand"] >= 5) & (themes["f1"].fillna(0) < 0.7)]
     for row in weak.itertuples():
         click.echo(f"  weak: {row.theme} (hand {row.hand}, machine {row.machine}, F1 {row.f1:.2f})")
-    click.echo(f"wrote agreement.csv and disagreements.csv ({len(disagreements)} answers differ) to {out_dir}")
+    for row in report.alpha.itertuples():
+        if row.units and row.alpha == row.alpha and row.alpha < 0.667:
+            click.echo(f"  coders disagree on {row.theme}: alpha {row.alpha:.2f} over {row.units} answers")
+    click.echo(f"wrote {', '.join(sorted(files))} ({len(report.disagreements)} answers differ) to {out_dir}")

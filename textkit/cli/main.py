@@ -29,6 +29,10 @@ _LAZY_COMMANDS = {
     "prevalence": "textkit.cli.stats:prevalence_command",
     "keyness": "textkit.cli.discover:keyness_command",
     "suggest": "textkit.cli.discover:suggest_command",
+    "review": "textkit.cli.review:review_command",
+    "sample": "textkit.cli.review:sample_command",
+    "charts": "textkit.cli.present:charts_command",
+    "quotes": "textkit.cli.present:quotes_command",
 }
 
 

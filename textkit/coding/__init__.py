@@ -14,4 +14,9 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "parse_lexicon": "lexicon", "lint_lexicon": "lint", "format_lint": "lint",
     "ThemeCoder": "coder", "CodingResult": "coder",
     "compare_with_hand_codes": "agreement", "agreement_table": "agreement",
+    "evaluate_hand_codes": "agreement", "krippendorff_alpha_nominal": "agreement",
+    "hand_codes_from_frame": "handcodes", "HandCodes": "handcodes",
+    "apply_corrections": "corrections", "corrections_from_frame": "corrections",
+    "review_table": "review", "select_for_review": "review", "draw_sample": "sampling",
+    "lexicon_diff": "lexicon_diff",
 })

@@ -420,9 +420,26 @@ class _Parser:
                                   f"found {_kind(node)}")
         return None
 
-    # the lexicon -------------------------------------------------------------------
+    # the lexicon: header, settings, themes, hierarchy ----------------------------------
 
     def lexicon(self, root: yaml.Node | None, source: str, sha256: str) -> Lexicon | None:
+        top = self.top_level(root)
+        if top is None:
+            return None
+        name, version, language = self.header(root, top)
+        window, inflect = DEFAULT_NEGATION_WINDOW, True
+        if "settings" in top:
+            window, inflect = self.settings(top["settings"][1])
+        parent_nodes: dict[str, yaml.Node] = {}
+        themes = self.theme_list(root, top, inflect, parent_nodes)
+        self.hierarchy(themes, parent_nodes)
+        if self.problems or name is None:
+            return None
+        return Lexicon(name=name, version=version or "", language=language, themes=tuple(themes),
+                       negation_window=window, source=source, sha256=sha256)
+
+    def top_level(self, root: yaml.Node | None) -> dict[str, tuple[yaml.Node, yaml.Node]] | None:
+        """The top-level mapping's entries, or None (a problem noted) if the root is not a mapping."""
         if root is None:
             self.problem(1, "the lexicon is empty; expected a mapping with keys "
                             f"{', '.join(_TOP_KEYS)}")
@@ -431,7 +448,11 @@ class _Parser:
             self.problem(_line(root), f"the top level must be a mapping with keys {', '.join(_TOP_KEYS)}; "
                                       f"found {_kind(root)}")
             return None
-        top = self.mapping(root, _TOP_KEYS, "at the top level")
+        return self.mapping(root, _TOP_KEYS, "at the top level")
+
+    def header(self, root: yaml.MappingNode, top: dict[str, tuple[yaml.Node, yaml.Node]]
+               ) -> tuple[str | None, str | None, str]:
+        """``(name, version, language)`` from the top level."""
         name = None
         if "lexicon" in top:
             name = self.text(top["lexicon"][1], "'lexicon' (the lexicon's name)", required=True)
@@ -445,29 +466,26 @@ class _Parser:
                 self.problem(_line(top["language"][1]),
                              f"'language' must be a language code such as 'en', found '{value}'")
             language = (value or "en").lower()
-        window, inflect = DEFAULT_NEGATION_WINDOW, True
-        if "settings" in top:
-            window, inflect = self.settings(top["settings"][1])
+        return name, version, language
+
+    def theme_list(self, root: yaml.MappingNode, top: dict[str, tuple[yaml.Node, yaml.Node]],
+                   inflect: bool, parent_nodes: dict[str, yaml.Node]) -> list[Theme]:
+        """The valid themes of ``themes:``, file order; ``parent_nodes`` gets each parent's node."""
         themes: list[Theme] = []
         id_nodes: dict[str, yaml.Node] = {}
-        parent_nodes: dict[str, yaml.Node] = {}
         if "themes" not in top:
             self.missing(root, "themes", "missing key 'themes' (the list of themes) at the top level")
-        else:
-            node = top["themes"][1]
-            if not isinstance(node, yaml.SequenceNode) or not node.value:
-                self.problem(_line(node), "'themes' must be a list of themes, each starting with "
-                                          f"'- id: ...'; found {_kind(node)}")
-            else:
-                for item in node.value:
-                    theme = self.theme(item, inflect, id_nodes, parent_nodes)
-                    if theme is not None:
-                        themes.append(theme)
-        self.hierarchy(themes, parent_nodes)
-        if self.problems or name is None:
-            return None
-        return Lexicon(name=name, version=version or "", language=language, themes=tuple(themes),
-                       negation_window=window, source=source, sha256=sha256)
+            return themes
+        node = top["themes"][1]
+        if not isinstance(node, yaml.SequenceNode) or not node.value:
+            self.problem(_line(node), "'themes' must be a list of themes, each starting with "
+                                      f"'- id: ...'; found {_kind(node)}")
+            return themes
+        for item in node.value:
+            theme = self.theme(item, inflect, id_nodes, parent_nodes)
+            if theme is not None:
+                themes.append(theme)
+        return themes
 
     def settings(self, node: yaml.Node) -> tuple[int, bool]:
         window, inflect = DEFAULT_NEGATION_WINDOW, True
@@ -486,6 +504,8 @@ class _Parser:
             inflect = inflect if value is None else value
         return window, inflect
 
+    # one theme: id, descriptive fields, policies, terms ---------------------------------
+
     def theme(self, node: yaml.Node, default_inflect: bool, id_nodes: dict[str, yaml.Node],
               parent_nodes: dict[str, yaml.Node]) -> Theme | None:
         if not isinstance(node, yaml.MappingNode):
@@ -496,47 +516,12 @@ class _Parser:
                        if isinstance(key, yaml.ScalarNode) and key.value == "id"
                        and isinstance(value, yaml.ScalarNode) and value.value), None)
         entries = self.mapping(node, _THEME_KEYS, f"in theme '{raw_id}'" if raw_id else "in a theme")
-        theme_id = None
-        if "id" not in entries:
-            self.missing(node, "id", "theme without 'id'; add 'id: some_name'")
-        else:
-            value_node = entries["id"][1]
-            theme_id = self.text(value_node, "the theme 'id'", required=True)
-            if theme_id is not None and not _ID.match(theme_id):
-                self.problem(_line(value_node), f"theme id '{theme_id}' must start with a lower-case "
-                                                "letter and hold only a-z, 0-9 and '_'")
-                theme_id = None
-            elif theme_id is not None and theme_id in id_nodes:
-                self.problem(_line(value_node), f"theme id '{theme_id}' is used twice "
-                                                f"(first at line {_line(id_nodes[theme_id])})")
-                theme_id = None
-            elif theme_id is not None:
-                id_nodes[theme_id] = value_node
+        theme_id = self.theme_id(node, entries, id_nodes)
         where = f"theme '{theme_id}'" if theme_id else f"the theme at line {_line(node)}"
-        label = None
-        if "label" not in entries:
-            self.missing(node, "label", f"{where} has no 'label'; add 'label: Some label'")
-        else:
-            label = self.text(entries["label"][1], f"the 'label' of {where}", required=True)
-        about = self.text(entries["about"][1], f"the 'about' of {where}") if "about" in entries else ""
-        parent = None
-        if "parent" in entries:
-            parent = self.text(entries["parent"][1], f"the 'parent' of {where}")
-            if parent and theme_id:
-                parent_nodes[theme_id] = entries["parent"][1]
-        negated = "drop"
-        if "negated" in entries:
-            value = self.text(entries["negated"][1], f"'negated' of {where}", required=True)
-            if value is not None and value not in NEGATED_POLICIES:
-                self.problem(_line(entries["negated"][1]),
-                             f"'negated' of {where} must be 'drop' (negated mentions don't count) or "
-                             f"'keep' (they do), found '{value}'")
-            elif value is not None:
-                negated = value
-        inflect = default_inflect
-        if "inflect" in entries:
-            value = self.boolean(entries["inflect"][1], f"'inflect' of {where}")
-            inflect = inflect if value is None else value
+        label, about, parent = self.theme_description(node, entries, where)
+        if parent and theme_id:
+            parent_nodes[theme_id] = entries["parent"][1]
+        negated, inflect = self.theme_policies(entries, where, default_inflect)
         terms: tuple[Term, ...] = ()
         if "terms" not in entries:
             self.missing(node, "terms", f"{where} has no 'terms'; list at least one term")
@@ -550,6 +535,56 @@ class _Parser:
             return None
         return Theme(id=theme_id, label=label, about=about or "", parent=parent or None, terms=terms,
                      exclusions=exclusions, negated=negated, line=_line(node))
+
+    def theme_id(self, node: yaml.MappingNode, entries: dict[str, tuple[yaml.Node, yaml.Node]],
+                 id_nodes: dict[str, yaml.Node]) -> str | None:
+        """The theme's valid, unused id (recorded in ``id_nodes``), or None."""
+        if "id" not in entries:
+            self.missing(node, "id", "theme without 'id'; add 'id: some_name'")
+            return None
+        value_node = entries["id"][1]
+        theme_id = self.text(value_node, "the theme 'id'", required=True)
+        if theme_id is not None and not _ID.match(theme_id):
+            self.problem(_line(value_node), f"theme id '{theme_id}' must start with a lower-case "
+                                            "letter and hold only a-z, 0-9 and '_'")
+            return None
+        if theme_id is not None and theme_id in id_nodes:
+            self.problem(_line(value_node), f"theme id '{theme_id}' is used twice "
+                                            f"(first at line {_line(id_nodes[theme_id])})")
+            return None
+        if theme_id is not None:
+            id_nodes[theme_id] = value_node
+        return theme_id
+
+    def theme_description(self, node: yaml.MappingNode, entries: dict[str, tuple[yaml.Node, yaml.Node]],
+                          where: str) -> tuple[str | None, str | None, str | None]:
+        """``(label, about, parent)`` of a theme as written."""
+        label = None
+        if "label" not in entries:
+            self.missing(node, "label", f"{where} has no 'label'; add 'label: Some label'")
+        else:
+            label = self.text(entries["label"][1], f"the 'label' of {where}", required=True)
+        about = self.text(entries["about"][1], f"the 'about' of {where}") if "about" in entries else ""
+        parent = self.text(entries["parent"][1], f"the 'parent' of {where}") if "parent" in entries else None
+        return label, about, parent
+
+    def theme_policies(self, entries: dict[str, tuple[yaml.Node, yaml.Node]], where: str,
+                       default_inflect: bool) -> tuple[str, bool]:
+        """``(negated, inflect)`` of a theme, defaults where absent or invalid."""
+        negated = "drop"
+        if "negated" in entries:
+            value = self.text(entries["negated"][1], f"'negated' of {where}", required=True)
+            if value is not None and value not in NEGATED_POLICIES:
+                self.problem(_line(entries["negated"][1]),
+                             f"'negated' of {where} must be 'drop' (negated mentions don't count) or "
+                             f"'keep' (they do), found '{value}'")
+            elif value is not None:
+                negated = value
+        inflect = default_inflect
+        if "inflect" in entries:
+            value = self.boolean(entries["inflect"][1], f"'inflect' of {where}")
+            inflect = inflect if value is None else value
+        return negated, inflect
 
     def terms(self, node: yaml.Node, inflect: bool, where: str, need_one: bool) -> tuple[Term, ...]:
         if isinstance(node, yaml.ScalarNode) and node.tag == _NULL_TAG and node.style is None:

@@ -621,33 +621,75 @@ def compare(
     terms = np.asarray(terms, dtype=object)
     n_words = np.asarray(n_words)
     n_documents = matrix.shape[0]
-    if len(groups) != n_documents:
-        raise AnalysisError(f"groups has {len(groups)} rows but the matrix has {n_documents} documents")
     by = list(groups.columns) if by is None else list(by)
     pairs = [tuple(p) for p in pairs]
+    needed = _needed_variables(groups, n_documents, by, pairs, wave)
+    answered = np.ones(n_documents, bool) if answered is None else np.asarray(answered, dtype=bool)
+    restrictions = _restrictions(answered, theme_matrix, themes, list(within_themes))
+    labels = {variable: _labels(groups[variable].to_numpy()) for variable in needed}
+    _check_pairs(labels, pairs)
+
+    mats = _prepare(matrix, n_words, weights, document_frequency, weighted, doc_lengths)
+    columns, below_everywhere = _frequent_columns(mats, answered, options.min_respondents)
+    sub_terms, sub_words = terms[columns], n_words[columns]
+    parts = phrase_parts(sub_terms, sub_words) if options.phrase_handling == "collapse" else None
+
+    frames: list[pd.DataFrame] = []
+    totals = dict.fromkeys(SUMMARY_KEYS, 0)
+    skipped: list[str] = []
+    n_comparisons = 0
+    for theme, scope in restrictions:
+        for variable in needed:
+            codes, values = labels[variable]
+            counts = _class_sums(mats, np.where(scope, codes, -1), len(values), columns)
+            jobs = _comparison_jobs(counts, variable, values, by, wave, rest, pairs, theme, skipped,
+                                    options.min_respondents)
+            for g, r in jobs:
+                frame, summary = _score(sub_terms, sub_words, *_sides(counts, g, r), options, parts)
+                n_comparisons += 1
+                for key in SUMMARY_KEYS:
+                    totals[key] += summary[key]
+                frames.append(_label_comparison(frame, question, variable,
+                                                values[g], None if r is None else values[r], theme))
+    return _assemble_table(frames, totals, n_comparisons, below_everywhere, skipped)
+
+
+def _needed_variables(groups: pd.DataFrame, n_documents: int, by: list[str], pairs: list[tuple],
+                      wave: str | None) -> list[str]:
+    """The group variables the comparisons use, in order; each must be a column of ``groups``."""
+    if len(groups) != n_documents:
+        raise AnalysisError(f"groups has {len(groups)} rows but the matrix has {n_documents} documents")
     needed = list(dict.fromkeys([*by, *(p[0] for p in pairs)] + ([wave] if wave in by else [])))
     for variable in needed:
         if variable not in groups.columns:
             available = ", ".join(map(str, groups.columns)) or "none"
             raise AnalysisError(f"the data has no group variable '{variable}' (available: {available})",
                                 column=str(variable))
-    answered = np.ones(n_documents, bool) if answered is None else np.asarray(answered, dtype=bool)
-    restrictions: list[tuple[str, np.ndarray]] = [("", answered)]
-    within_themes = list(within_themes)
-    if within_themes:
-        if theme_matrix is None or themes is None:
-            raise AnalysisError("within-theme keyness needs the theme matrix and theme ids")
-        theme_matrix = sp.csc_matrix(theme_matrix)
-        theme_ids = list(themes)
-        for theme in within_themes:
-            if theme not in theme_ids:
-                raise AnalysisError(f"unknown theme '{theme}' (themes: {', '.join(theme_ids)})")
-            column = theme_matrix[:, theme_ids.index(theme)]
-            mentions = np.zeros(n_documents, bool)
-            mentions[column.indices[column.data != 0]] = True
-            restrictions.append((theme, answered & mentions))
+    return needed
 
-    labels = {variable: _labels(groups[variable].to_numpy()) for variable in needed}
+
+def _restrictions(answered: np.ndarray, theme_matrix: sp.spmatrix | None, themes: Sequence[str] | None,
+                  within_themes: list[str]) -> list[tuple[str, np.ndarray]]:
+    """(theme id or "", answers in scope): all answered ones, then those coded with each theme."""
+    restrictions: list[tuple[str, np.ndarray]] = [("", answered)]
+    if not within_themes:
+        return restrictions
+    if theme_matrix is None or themes is None:
+        raise AnalysisError("within-theme keyness needs the theme matrix and theme ids")
+    theme_matrix = sp.csc_matrix(theme_matrix)
+    theme_ids = list(themes)
+    for theme in within_themes:
+        if theme not in theme_ids:
+            raise AnalysisError(f"unknown theme '{theme}' (themes: {', '.join(theme_ids)})")
+        column = theme_matrix[:, theme_ids.index(theme)]
+        mentions = np.zeros(len(answered), bool)
+        mentions[column.indices[column.data != 0]] = True
+        restrictions.append((theme, answered & mentions))
+    return restrictions
+
+
+def _check_pairs(labels: dict[str, tuple[np.ndarray, np.ndarray]], pairs: list[tuple]) -> None:
+    """Every explicit pair names two different groups its variable has."""
     for variable, group, reference in pairs:
         values = [str(v) for v in labels[variable][1]]
         for value in (group, reference):
@@ -658,70 +700,75 @@ def compare(
             raise AnalysisError(f"'{group}' cannot be compared with itself; choose two different groups "
                                 f"of '{variable}'", column=str(variable))
 
-    mats = _prepare(matrix, n_words, weights, document_frequency, weighted, doc_lengths)
-    # Terms too rare among all compared answers can pass no comparison: drop them once.
-    in_scope = np.asarray(answered, dtype=np.float64) @ mats.binary
-    columns = np.flatnonzero(np.asarray(in_scope).ravel() >= options.min_respondents)
-    below_everywhere = int(((np.asarray(in_scope).ravel() > 0)
-                            & (np.asarray(in_scope).ravel() < options.min_respondents)).sum())
-    sub_terms, sub_words = terms[columns], n_words[columns]
-    parts = phrase_parts(sub_terms, sub_words) if options.phrase_handling == "collapse" else None
 
-    frames: list[pd.DataFrame] = []
-    totals = dict.fromkeys(SUMMARY_KEYS, 0)
-    skipped: list[str] = []
-    n_comparisons = 0
-    for theme, scope in restrictions:
-        where = f" within theme '{theme}'" if theme else ""
-        for variable in needed:
-            codes, values = labels[variable]
-            classes = np.where(scope, codes, -1)
-            counts = _class_sums(mats, classes, len(values), columns)
-            jobs: list[tuple[int, int | None]] = []
-            with_answers, too_small = _group_sizes(counts.documents, options.min_respondents)
-            if variable in by and (rest or variable == wave):
-                skipped.extend(f"{variable}={values[i]}{where}: {int(counts.documents[i])} answer(s), fewer "
-                               f"than the minimum of {options.min_respondents}" for i in too_small)
-                if len(with_answers) < 2:
-                    if theme:
-                        skipped.append(f"'{variable}'{where}: fewer than two groups with answers")
-                        continue
-                    raise AnalysisError(f"group variable '{variable}' has {len(with_answers)} group(s) "
-                                        f"with at least {options.min_respondents} answers; keyness needs at "
-                                        "least two", column=str(variable))
-                skipped.extend(f"{variable}={values[i]}{where}: no answers"
-                               for i in np.flatnonzero(counts.documents == 0))
-                if rest:
-                    jobs.extend((int(i), None) for i in with_answers)
-                if variable == wave:
-                    jobs.extend((int(later), int(earlier))
-                                for earlier, later in zip(with_answers[:-1], with_answers[1:], strict=True))
-            value_index = {str(v): i for i, v in enumerate(values)}
-            for pair_variable, group, reference in pairs:
-                if pair_variable != variable:
-                    continue
-                g, r = value_index[str(group)], value_index[str(reference)]
-                empty = [value for value, index in ((group, g), (reference, r))
-                         if counts.documents[index] == 0]
-                if empty and theme:
-                    skipped.append(f"{variable}={empty[0]} vs {reference if empty[0] == group else group}"
-                                   f"{where}: no answers")
-                    continue
-                if empty:
-                    raise AnalysisError(f"group '{empty[0]}' of '{variable}' has no answers; nothing to "
-                                        "compare", column=str(variable))
-                jobs.append((g, r))
-            for g, r in dict.fromkeys(jobs):
-                frame, summary = _score(sub_terms, sub_words, *_sides(counts, g, r), options, parts)
-                n_comparisons += 1
-                for key in SUMMARY_KEYS:
-                    totals[key] += summary[key]
-                frame.insert(0, "question", question)
-                frame.insert(1, "group_var", str(variable))
-                frame.insert(2, "group", str(values[g]))
-                frame.insert(3, "reference", REST if r is None else str(values[r]))
-                frame["within_theme"] = theme
-                frames.append(frame)
+def _frequent_columns(mats: _Matrices, answered: np.ndarray, min_respondents: int) -> tuple[np.ndarray, int]:
+    """Columns of terms in at least ``min_respondents`` compared answers, and how many fell short.
+
+    Terms too rare among all compared answers can pass no comparison: they are dropped once.
+    """
+    in_scope = np.asarray(np.asarray(answered, dtype=np.float64) @ mats.binary).ravel()
+    columns = np.flatnonzero(in_scope >= min_respondents)
+    below_everywhere = int(((in_scope > 0) & (in_scope < min_respondents)).sum())
+    return columns, below_everywhere
+
+
+def _comparison_jobs(counts: _Counts, variable: str, values: np.ndarray, by: list[str], wave: str | None,
+                     rest: bool, pairs: list[tuple], theme: str, skipped: list[str], minimum: int = 1
+                     ) -> list[tuple[int, int | None]]:
+    """(group, reference or None for the rest) class pairs to score for one variable and scope.
+
+    Appends to ``skipped`` what is left out for want of answers; raises where that is an error.
+    """
+    where = f" within theme '{theme}'" if theme else ""
+    jobs: list[tuple[int, int | None]] = []
+    with_answers, too_small = _group_sizes(counts.documents, minimum)
+    if variable in by and (rest or variable == wave):
+        skipped.extend(f"{variable}={values[i]}{where}: {int(counts.documents[i])} answer(s), fewer than the "
+                       f"minimum of {minimum}" for i in too_small)
+        if len(with_answers) < 2:
+            if theme:
+                skipped.append(f"'{variable}'{where}: fewer than two groups with answers")
+                return []
+            raise AnalysisError(f"group variable '{variable}' has {len(with_answers)} group(s) with at least "
+                                f"{minimum} answers; keyness needs at least two", column=str(variable))
+        skipped.extend(f"{variable}={values[i]}{where}: no answers"
+                       for i in np.flatnonzero(counts.documents == 0))
+        if rest:
+            jobs.extend((int(i), None) for i in with_answers)
+        if variable == wave:
+            jobs.extend((int(later), int(earlier))
+                        for earlier, later in zip(with_answers[:-1], with_answers[1:], strict=True))
+    value_index = {str(v): i for i, v in enumerate(values)}
+    for pair_variable, group, reference in pairs:
+        if pair_variable != variable:
+            continue
+        g, r = value_index[str(group)], value_index[str(reference)]
+        empty = [value for value, index in ((group, g), (reference, r)) if counts.documents[index] == 0]
+        if empty and theme:
+            skipped.append(f"{variable}={empty[0]} vs {reference if empty[0] == group else group}"
+                           f"{where}: no answers")
+            continue
+        if empty:
+            raise AnalysisError(f"group '{empty[0]}' of '{variable}' has no answers; nothing to "
+                                "compare", column=str(variable))
+        jobs.append((g, r))
+    return list(dict.fromkeys(jobs))
+
+
+def _label_comparison(frame: pd.DataFrame, question: str | None, variable: str, group: Any,
+                      reference: Any, theme: str) -> pd.DataFrame:
+    """Put the comparison's identity (question, variable, group, reference, theme) on its rows."""
+    frame.insert(0, "question", question)
+    frame.insert(1, "group_var", str(variable))
+    frame.insert(2, "group", str(group))
+    frame.insert(3, "reference", REST if reference is None else str(reference))
+    frame["within_theme"] = theme
+    return frame
+
+
+def _assemble_table(frames: list[pd.DataFrame], totals: dict[str, int], n_comparisons: int,
+                    below_everywhere: int, skipped: list[str]) -> pd.DataFrame:
+    """One table of every comparison, with the summary counters and skip notes in ``attrs``."""
     table = (pd.concat(frames, ignore_index=True) if frames
              else pd.DataFrame({c: pd.Series(dtype=object) for c in KEYNESS_COLUMNS}))[KEYNESS_COLUMNS]
     totals["comparisons"] = n_comparisons

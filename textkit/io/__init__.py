@@ -12,6 +12,7 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "SurveyConfig": "config", "load_config": "config", "config_from_mapping": "config",
     "read_table": "readers", "read_survey": "readers", "SurveyData": "readers", "answered_mask": "readers",
     "write_outputs": "output", "csv_writer": "output", "parquet_writer": "output", "text_writer": "output",
-    "json_writer": "output", "file_sha256": "output", "xlsx_writer": "output", "safe_cell": "output",
-    "read_hand_codes": "readers",
+    "json_writer": "output", "file_sha256": "output",
+    "workbook_writer": "workbook", "read_coding_file": "workbook", "neutralise_cell": "workbook",
+    "xlsx_writer": "output", "safe_cell": "output", "check_hand_code_ids": "readers",
 })

@@ -12,13 +12,14 @@ Example::
       strata: stratum
       cluster: psu
       fpc: stratum_population        # population size N_h of each stratum
-      single_psu: error              # error | centre | collapse
-      nest: false                    # true when cluster ids restart in each stratum
+      one_cluster_stratum: refuse  # a stratum with one PSU: refuse | centre | merge
+      cluster_ids_restart: false                    # true when cluster ids restart in each stratum
     wave: wave                       # optional
     groups: [market, age_band]       # optional
     lexicon: ../lexicons/visitor_experience.yaml
     seed: 20261202
     non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
+    corrections: corrections.csv     # optional: hand corrections applied after coding
 
 Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
 index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
@@ -60,7 +61,7 @@ READING_OPTIONS: dict[str, tuple[str, ...]] = {
 }
 
 #: Policies for a stratum with a single primary sampling unit (used by the statistics).
-SINGLE_PSU_POLICIES: tuple[str, ...] = ("error", "centre", "collapse")
+ONE_CLUSTER_POLICIES: tuple[str, ...] = ("refuse", "centre", "merge")
 
 #: Answers that count as "not answered" when the config gives none (compared after
 #: trimming, collapsing inner whitespace and lower-casing).
@@ -70,9 +71,13 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
-    "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers",
+    "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers", "nets",
+    "corrections",
 )
-_DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "single_psu", "nest")
+#: Former names of keys -> their names now (refused with a hint).
+_RENAMED_KEYS = {"single_psu": "one_cluster_stratum (values refuse, centre, merge)",
+                 "nest": "cluster_ids_restart"}
+_DESIGN_KEYS: tuple[str, ...] = ("strata", "cluster", "fpc", "one_cluster_stratum", "cluster_ids_restart")
 _REQUIRED: tuple[str, ...] = ("survey", "id", "questions")
 
 # Roles whose columns may also serve another role in this set (a stratum or wave
@@ -121,8 +126,8 @@ class SurveyConfig:
         Weight column (None: every response weighs 1).
     strata, cluster, fpc : str or None
         Design columns; ``fpc`` holds the population size N_h of each stratum.
-    single_psu : str
-        Policy for a stratum with one PSU: ``"error"`` (default), ``"centre"`` or ``"collapse"``.
+    one_cluster_stratum : str
+        Policy for a stratum with one PSU: ``"refuse"`` (default), ``"centre"`` or ``"merge"``.
     wave : str or None
         Survey wave column.
     groups : tuple of str
@@ -133,6 +138,14 @@ class SurveyConfig:
         Seed for every random step (default 0).
     non_answers : tuple of str
         Normalised (trimmed, single-spaced, lower-cased) answers that count as not answered.
+    nets : dict of str to tuple of str
+        Named unions of themes (``nets: {facilities_any: [toilets, parking]}``),
+        estimated like themes by ``textkit prevalence``.
+    question_text : dict of str to str
+        The wording of questions given as ``{column: ..., text: ...}``.
+    corrections : Path or None
+        A researcher's corrections (CSV, or a filled review workbook), applied after
+        automated coding on every run; resolved against the config's folder.
     """
 
     path: Path | None
@@ -148,20 +161,23 @@ class SurveyConfig:
     strata: str | None = None
     cluster: str | None = None
     fpc: str | None = None
-    single_psu: str = "error"
-    nest: bool = False
+    one_cluster_stratum: str = "refuse"
+    cluster_ids_restart: bool = False
     wave: str | None = None
     groups: tuple[str, ...] = ()
     lexicon: Path | None = None
     seed: int = 0
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
+    nets: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    question_text: dict[str, str] = field(default_factory=dict)
+    corrections: Path | None = None
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
 
         Keys: ``id``, ``questions`` (name -> column), ``weight``, ``strata``, ``cluster``,
-        ``fpc``, ``single_psu``, ``nest`` (cluster ids numbered within each stratum),
-        ``wave`` (str or None) and ``groups`` (list of str).
+        ``fpc``, ``one_cluster_stratum``, ``cluster_ids_restart`` (cluster ids numbered within each stratum),
+        ``wave`` (str or None), ``groups`` (list of str), ``nets`` and ``question_text``.
         """
         return {
             "id": self.id_column,
@@ -170,10 +186,12 @@ class SurveyConfig:
             "strata": self.strata,
             "cluster": self.cluster,
             "fpc": self.fpc,
-            "single_psu": self.single_psu,
-            "nest": self.nest,
+            "one_cluster_stratum": self.one_cluster_stratum,
+            "cluster_ids_restart": self.cluster_ids_restart,
             "wave": self.wave,
             "groups": list(self.groups),
+            "nets": {name: list(members) for name, members in self.nets.items()},
+            "question_text": dict(self.question_text),
         }
 
     def design_columns(self) -> list[str]:
@@ -252,6 +270,10 @@ class _Builder:
         return _Item("scalar", None, value=value, text=str(value))
 
 
+#: An absent value (a key not given).
+_NULL = _Item("null", None)
+
+
 def _describe(item: _Item) -> str:
     if item.kind == "scalar":
         return f"{type(item.value).__name__} {item.text!r}"
@@ -263,12 +285,15 @@ class _Validator:
         self.b = builder
         self.base_dir = base_dir
         self.role_of: dict[str, tuple[str, int | None]] = {}
+        self.question_texts: dict[str, str] = {}
 
     def fail(self, message: str, line: int | None) -> InputError:
         return self.b.fail(message, line)
 
     def check_keys(self, mapping: _Item, allowed: tuple[str, ...], where: str) -> None:
         for key, (line, _) in mapping.entries.items():
+            if key in _RENAMED_KEYS:
+                raise self.fail(f"'{key}' in {where} is now called {_RENAMED_KEYS[key]}", line)
             if key not in allowed:
                 raise self.fail(f"unknown key '{key}' in {where}; valid keys are: {', '.join(allowed)}", line)
 
@@ -319,6 +344,43 @@ class _Validator:
         return path.resolve()
 
     def validate(self, root: _Item) -> dict[str, Any]:
+        """Every field of :class:`SurveyConfig` from the config's tree, or the first problem."""
+        entries, key_line = self.top_level(root)
+        out: dict[str, Any] = {"survey": self.survey_file(entries["survey"])}
+        out.update(self.reading(entries, key_line, out["survey"]))
+        out.update(self.column_roles(entries))
+        out.update(self.design(entries.get("design", _NULL)))
+        wave = entries.get("wave", _NULL)
+        out["wave"] = self.column(wave, "wave")
+        self.claim(out["wave"], "wave", wave.line)
+        out["groups"] = self.groups(entries.get("groups", _NULL))
+        out["lexicon"] = self.path(entries.get("lexicon", _NULL), "lexicon", optional=True)
+        out["seed"] = self.seed(entries.get("seed", _NULL))
+        out["non_answers"] = self.non_answers(entries.get("non_answers"))
+        out["nets"] = self.nets(entries.get("nets", _NULL))
+        out["question_text"] = self.question_texts
+        out["corrections"] = self.path(entries.get("corrections", _NULL), "corrections", optional=True)
+        return out
+
+    def nets(self, item: _Item) -> dict[str, tuple[str, ...]]:
+        """``nets:`` maps a net name to the list of theme ids it unites."""
+        if item.kind == "null":
+            return {}
+        if item.kind != "mapping":
+            raise self.fail(f"'nets' must map net names to lists of theme ids, found {_describe(item)}",
+                            item.line)
+        nets: dict[str, tuple[str, ...]] = {}
+        for name, (line, sub) in item.entries.items():
+            subs = sub.items if sub.kind == "sequence" else []
+            members = [str(self.text(m, f"nets.{name}")) for m in subs]
+            if sub.kind != "sequence" or not members:
+                raise self.fail(f"net '{name}' must list at least one theme id, found {_describe(sub)}",
+                                sub.line or line)
+            nets[name] = tuple(dict.fromkeys(members))
+        return nets
+
+    def top_level(self, root: _Item) -> tuple[dict[str, _Item], dict[str, int | None]]:
+        """The top-level entries and their lines, after checking keys and required keys."""
         if root.kind != "mapping":
             raise self.fail(f"a survey config must be a mapping of keys (survey:, id:, questions:), "
                             f"found {_describe(root)}", root.line)
@@ -329,94 +391,101 @@ class _Validator:
             if key not in entries:
                 raise self.fail(f"required key '{key}' is missing; a survey config needs "
                                 f"{', '.join(_REQUIRED)}", root.line)
-        out: dict[str, Any] = {}
-        out["survey"] = self.path(entries["survey"], "survey")
-        if survey_format(out["survey"]) is None:
-            raise self.fail(f"'survey' has an unknown file type '{out['survey'].suffix}'; expected one of "
-                            f"{', '.join(SURVEY_FORMATS)}", entries["survey"].line)
-        self.reading(entries, key_line, out)
+        return entries, key_line
 
-        out["id_column"] = self.column(entries["id"], "id", optional=False)
+    def survey_file(self, item: _Item) -> Path:
+        survey = self.path(item, "survey")
+        assert survey is not None
+        if survey_format(survey) is None:
+            raise self.fail(f"'survey' has an unknown file type '{survey.suffix}'; expected one of "
+                            f"{', '.join(SURVEY_FORMATS)}", item.line)
+        return survey
+
+    def column_roles(self, entries: dict[str, _Item]) -> dict[str, Any]:
+        """The id, questions and weight columns."""
+        out: dict[str, Any] = {"id_column": self.column(entries["id"], "id", optional=False)}
         self.claim(out["id_column"], "id", entries["id"].line)
         out["questions"] = self.questions(entries["questions"])
-        out["weight"] = self.column(entries.get("weight", _Item("null", None)), "weight")
-        self.claim(out["weight"], "weight", entries.get("weight", _Item("null", None)).line)
+        weight = entries.get("weight", _NULL)
+        out["weight"] = self.column(weight, "weight")
+        self.claim(out["weight"], "weight", weight.line)
+        return out
 
-        design = entries.get("design", _Item("null", None))
+    def design(self, design: _Item) -> dict[str, Any]:
+        """The ``design:`` mapping: strata, cluster and fpc columns, one-cluster policy, id numbering."""
         if design.kind not in ("null", "mapping"):
-            raise self.fail(f"'design' must be a mapping (strata:, cluster:, fpc:, single_psu:), "
+            raise self.fail(f"'design' must be a mapping (strata:, cluster:, fpc:, one_cluster_stratum:), "
                             f"found {_describe(design)}", design.line)
         self.check_keys(design, _DESIGN_KEYS, "'design'")
+        out: dict[str, Any] = {}
         for key in ("strata", "cluster", "fpc"):
-            item = design.entries.get(key, (None, _Item("null", None)))[1]
+            item = design.entries.get(key, (None, _NULL))[1]
             out[key] = self.column(item, f"design.{key}")
             self.claim(out[key], key, item.line)
-        policy_item = design.entries.get("single_psu", (None, None))[1]
-        out["single_psu"] = "error"
+        policy_item = design.entries.get("one_cluster_stratum", (None, None))[1]
+        out["one_cluster_stratum"] = "refuse"
         if policy_item is not None:
-            policy = self.text(policy_item, "design.single_psu")
-            if policy not in SINGLE_PSU_POLICIES:
-                raise self.fail(f"'design.single_psu' must be one of {', '.join(SINGLE_PSU_POLICIES)}, "
+            policy = self.text(policy_item, "design.one_cluster_stratum")
+            if policy not in ONE_CLUSTER_POLICIES:
+                raise self.fail(f"'design.one_cluster_stratum' must be one of {', '.join(ONE_CLUSTER_POLICIES)}, "
                                 f"found {policy!r}", policy_item.line)
-            out["single_psu"] = policy
-        nest_item = design.entries.get("nest", (None, None))[1]
-        out["nest"] = False
+            out["one_cluster_stratum"] = policy
+        nest_item = design.entries.get("cluster_ids_restart", (None, None))[1]
+        out["cluster_ids_restart"] = False
         if nest_item is not None and nest_item.kind != "null":
             if nest_item.kind != "scalar" or not isinstance(nest_item.value, bool):
-                raise self.fail(f"'design.nest' must be true or false, found {_describe(nest_item)}",
+                raise self.fail(f"'design.cluster_ids_restart' must be true or false, found {_describe(nest_item)}",
                                 nest_item.line)
-            out["nest"] = nest_item.value
-
-        wave = entries.get("wave", _Item("null", None))
-        out["wave"] = self.column(wave, "wave")
-        self.claim(out["wave"], "wave", wave.line)
-        out["groups"] = self.groups(entries.get("groups", _Item("null", None)))
-        out["lexicon"] = self.path(entries.get("lexicon", _Item("null", None)), "lexicon", optional=True)
-        out["seed"] = self.seed(entries.get("seed", _Item("null", None)))
-        out["non_answers"] = self.non_answers(entries.get("non_answers"))
+            out["cluster_ids_restart"] = nest_item.value
         return out
 
     def reading(self, entries: dict[str, _Item], key_line: dict[str, int | None],
-                out: dict[str, Any]) -> None:
-        survey = out["survey"]
+                survey: Path) -> dict[str, Any]:
+        """The reading options (sheet, table, query, encoding, delimiter), each checked against the file type."""
         for option in READING_OPTIONS:
             if option in entries and entries[option].kind != "null":
                 misfit = reading_option_misfit(survey, option)
                 if misfit:
                     raise self.fail(misfit, key_line[option])
-        sheet = entries.get("sheet", _Item("null", None))
+        out: dict[str, Any] = {"sheet": self.sheet(entries.get("sheet", _NULL))}
+        out["table"] = self.text(entries.get("table", _NULL), "table", optional=True)
+        out["query"] = self.text(entries.get("query", _NULL), "query", optional=True)
+        if out["table"] is not None and out["query"] is not None:
+            raise self.fail("give either 'table' or 'query', not both", key_line["query"])
+        out["encoding"] = self.encoding(entries.get("encoding", _NULL))
+        out["delimiter"] = self.delimiter(entries.get("delimiter", _NULL))
+        return out
+
+    def sheet(self, sheet: _Item) -> str | int | None:
         if sheet.kind == "null":
-            out["sheet"] = None
-        elif sheet.kind == "scalar" and isinstance(sheet.value, int) and not isinstance(sheet.value, bool):
+            return None
+        if sheet.kind == "scalar" and isinstance(sheet.value, int) and not isinstance(sheet.value, bool):
             if sheet.value < 0:
                 raise self.fail("'sheet' index must be 0 or more (0 is the first sheet), "
                                 f"found {sheet.value}", sheet.line)
-            out["sheet"] = sheet.value
-        else:
-            out["sheet"] = self.text(sheet, "sheet")
-        out["table"] = self.text(entries.get("table", _Item("null", None)), "table", optional=True)
-        out["query"] = self.text(entries.get("query", _Item("null", None)), "query", optional=True)
-        if out["table"] is not None and out["query"] is not None:
-            raise self.fail("give either 'table' or 'query', not both", key_line["query"])
-        encoding = entries.get("encoding", _Item("null", None))
-        out["encoding"] = self.text(encoding, "encoding", optional=True)
-        if out["encoding"] is not None:
+            return sheet.value
+        return self.text(sheet, "sheet")
+
+    def encoding(self, encoding: _Item) -> str | None:
+        name = self.text(encoding, "encoding", optional=True)
+        if name is not None:
             try:
-                codecs.lookup(out["encoding"])
+                codecs.lookup(name)
             except LookupError:
-                raise self.fail(f"unknown text encoding {out['encoding']!r}; try utf-8, cp1252 or latin-1",
+                raise self.fail(f"unknown text encoding {name!r}; try utf-8, cp1252 or latin-1",
                                 encoding.line) from None
-        delimiter = entries.get("delimiter", _Item("null", None))
+        return name
+
+    def delimiter(self, delimiter: _Item) -> str | None:
         if delimiter.kind == "null":
-            out["delimiter"] = None
-        else:
-            value = delimiter.value
-            if delimiter.kind != "scalar" or not isinstance(value, str) or len(value) != 1:
-                raise self.fail("'delimiter' must be one character (write \"\\t\" in double quotes for "
-                                f"a tab), found {_describe(delimiter)}", delimiter.line)
-            if delimiter.value in "\"\r\n":
-                raise self.fail(f"'delimiter' cannot be {delimiter.value!r}", delimiter.line)
-            out["delimiter"] = delimiter.value
+            return None
+        value = delimiter.value
+        if delimiter.kind != "scalar" or not isinstance(value, str) or len(value) != 1:
+            raise self.fail("'delimiter' must be one character (write \"\\t\" in double quotes for "
+                            f"a tab), found {_describe(delimiter)}", delimiter.line)
+        if delimiter.value in "\"\r\n":
+            raise self.fail(f"'delimiter' cannot be {delimiter.value!r}", delimiter.line)
+        return delimiter.value
 
     def questions(self, item: _Item) -> dict[str, str]:
         questions: dict[str, str] = {}
@@ -425,6 +494,8 @@ class _Validator:
             for name, line, sub in pairs:
                 if not name.strip():
                     raise self.fail("a question name must be non-empty text", line)
+                if sub.kind == "mapping":
+                    sub = self.worded_question(name, sub)
                 column = self.column(sub, f"questions.{name}", optional=False)
                 self.claim(column, f"text column of question '{name}'", sub.line or line)
                 questions[name] = column
@@ -439,6 +510,15 @@ class _Validator:
         if not questions:
             raise self.fail("'questions' is empty; name at least one text column", item.line)
         return questions
+
+    def worded_question(self, name: str, item: _Item) -> _Item:
+        """``{column: ..., text: ...}``: records the wording, returns the column's item."""
+        self.check_keys(item, ("column", "text"), f"question '{name}'")
+        if "column" not in item.entries:
+            raise self.fail(f"question '{name}' needs 'column:' (the text column)", item.line)
+        if "text" in item.entries:
+            self.question_texts[name] = str(self.text(item.entries["text"][1], f"questions.{name}.text"))
+        return item.entries["column"][1]
 
     def groups(self, item: _Item) -> tuple[str, ...]:
         if item.kind == "null":
@@ -523,7 +603,7 @@ def load_config(path: str | Path) -> SurveyConfig:
         With ``source`` the config path and ``line`` the offending line: missing or
         unreadable file, not YAML, not a mapping, unknown or repeated keys, missing
         required keys, wrong value types, a column in incompatible roles, an unknown
-        ``single_psu`` policy, a reading option that does not fit the survey's file type.
+        ``one_cluster_stratum`` policy, a reading option that does not fit the survey's file type.
     """
     config_path = Path(path).expanduser()
     if not config_path.exists():

@@ -126,7 +126,8 @@ def csv_writer(frame: Any, **to_csv_options: Any) -> Writer:
 
     A ``sep="\\t"`` option makes it a TSV writer.
     """
-    return lambda path: safe_frame(frame).to_csv(path, index=False, encoding="utf-8", **to_csv_options)
+    options = {"encoding": "utf-8", **to_csv_options}
+    return lambda path: safe_frame(frame).to_csv(path, index=False, **options)
 
 
 def xlsx_writer(sheets: Mapping[str, Any]) -> Writer:
@@ -153,6 +154,45 @@ def text_writer(text: str) -> Writer:
 def json_writer(payload: Any) -> Writer:
     """Writer for a JSON document (sorted keys, so identical inputs give identical bytes)."""
     return text_writer(json.dumps(payload, indent=2, sort_keys=True, default=str) + "\n")
+
+
+def render_figure(figure: Any, file_format: str, dpi: int = 200) -> bytes:
+    """The bytes of a matplotlib figure as ``png`` (``dpi`` >= 200) or ``svg``, identical across runs.
+
+    PNG: no software stamp, zlib level 3 (about 40% faster than the default for
+    a few per cent more bytes). SVG: no date, element ids from a fixed hash salt,
+    text kept as text (editable in a drawing program; the font is DejaVu Sans).
+    """
+    import io
+
+    import matplotlib
+
+    buffer = io.BytesIO()
+    if file_format == "png":
+        if dpi < 200:
+            raise ValueError(f"PNG charts are written at 200 dpi or more, got {dpi}")
+        figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None}, pil_kwargs={"compress_level": 3})
+    elif file_format == "svg":
+        with matplotlib.rc_context({"svg.hashsalt": "textkit", "svg.fonttype": "none"}):
+            figure.savefig(buffer, format="svg", metadata={"Date": None})
+    else:
+        raise ValueError(f"unknown figure format {file_format!r}; expected png or svg")
+    return buffer.getvalue()
+
+
+def bytes_writer(data: bytes) -> Writer:
+    """Writer for bytes already rendered."""
+    return lambda path: Path(path).write_bytes(data)
+
+
+def figure_png_writer(figure: Any, dpi: int = 200) -> Writer:
+    """Writer for a matplotlib figure as PNG (``dpi`` at least 200, for print)."""
+    return lambda path: Path(path).write_bytes(render_figure(figure, "png", dpi))
+
+
+def figure_svg_writer(figure: Any) -> Writer:
+    """Writer for a matplotlib figure as SVG, byte-identical across runs (see :func:`render_figure`)."""
+    return lambda path: Path(path).write_bytes(render_figure(figure, "svg"))
 
 
 # --------------------------------------------------------------------------- the folder

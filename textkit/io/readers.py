@@ -735,36 +735,21 @@ def _cap_answers(text: pd.Series, cap: int, what: str, source: Path, notes: list
     return text
 
 
-def read_hand_codes(path: str | Path, text_column: str, codes_column: str,
-                    known_ids: tuple[str, ...] | list[str] = ()) -> tuple[pd.DataFrame, list[str]]:
-    """Read a hand-coded sample and check its codes look like theme ids.
+def check_hand_code_ids(frame: pd.DataFrame, codes_column: str, source: str | Path,
+                        known_ids: tuple[str, ...] | list[str] = ()) -> None:
+    """Refuse hand codes that cannot be theme ids (``2``, ``yes``, ``no``, ``Toilets``).
 
-    Parameters
-    ----------
-    path : path
-        Any file :func:`read_table` reads.
-    text_column, codes_column : str
-        The answers, and the hand codes (theme ids separated by ``;``).
-    known_ids : sequence of str
-        Theme ids of the lexicon (always accepted).
-
-    Returns
-    -------
-    (frame, notes) as :func:`read_table`.
+    ``codes_column`` holds theme ids separated by ``;``; ids are lower-case letters,
+    digits and ``_``, starting with a letter (``known_ids`` are always accepted). A
+    frame without that column (the wide 0/1 form) is left alone.
 
     Raises
     ------
     InputError
-        A column missing, or a code that cannot be a theme id (``2``, ``yes``,
-        ``Toilets``): ids are lower-case letters, digits and ``_``, starting with
-        a letter. The first such code is named with its row.
+        Naming the first such code with its row and column.
     """
-    source = Path(path)
-    frame, notes = read_table(source)
-    for column in (text_column, codes_column):
-        if column not in frame.columns:
-            raise InputError(f"no column '{column}'; the columns are: {', '.join(map(str, frame.columns))}",
-                             source=source, column=column)
+    if codes_column not in frame.columns:
+        return
     known = set(known_ids)
     for row, value in enumerate(_as_text(frame[codes_column]), start=1):
         if not isinstance(value, str):
@@ -776,7 +761,6 @@ def read_hand_codes(path: str | Path, text_column: str, codes_column: str,
                 raise InputError(f"hand code {code!r} is not a theme id; list the ids of the themes an answer "
                                  "has, separated by ';' (a yes/no or 0/1 column is not a hand code)",
                                  source=source, row=row, column=codes_column)
-    return frame, notes
 
 
 def read_survey(config: SurveyConfig) -> SurveyData:

@@ -10,9 +10,9 @@ Conventions (all documented choices):
 * **No design given.** Every unit is its own PSU in one stratum, with its weight
   (weight 1 when no weight column is given).
 * **Strata without clusters.** Every unit is its own PSU inside its stratum.
-* **Cluster ids.** With ``nest=False`` (default) a cluster id names one PSU of the
+* **Cluster ids.** With ``cluster_ids_restart=False`` (default) a cluster id names one PSU of the
   whole survey, so the same id in two strata is refused ("clusters not nested in
-  strata"). With ``nest=True`` cluster ids are numbered within each stratum and the
+  strata"). With ``cluster_ids_restart=True`` cluster ids are numbered within each stratum and the
   pair (stratum, cluster) is relabelled as a PSU of its own.
 * **Waves.** Waves are independent samples. When ``wave`` is given the strata are
   crossed with the wave (a wave without strata is one stratum) and PSUs never span
@@ -23,14 +23,14 @@ Conventions (all documented choices):
   population units otherwise), or the sampling fraction ``n_h/N_h`` when every
   value is at most 1. It must be constant within a stratum. The stratum's variance
   factor is ``f_h = 1 - n_h/N_h``.
-* **Strata with a single PSU** (``single_psu``):
+* **Strata with a single PSU** (``one_cluster_stratum``):
 
-  - ``"error"`` (default): refuse the design, naming the stratum.
+  - ``"refuse"`` (default): refuse the design, naming the stratum.
   - ``"centre"``: the stratum's only PSU contributes ``f_h (z - zbar)^2`` with
     ``zbar`` the mean PSU total over the whole design (common practice, often
     called "adjust"). For linearised ratio scores that mean is exactly 0, so the
     contribution is ``f_h z^2``.
-  - ``"collapse"``: each single-PSU stratum is merged with the stratum that follows
+  - ``"merge"``: each single-PSU stratum is merged with the stratum that follows
     it in sorted order of stratum labels within the same wave (the last stratum of
     a wave with the one before it); merging repeats until every merged stratum has
     at least two PSUs. A merged stratum gets no finite-population correction
@@ -50,8 +50,13 @@ import numpy as np
 
 from ..errors import DesignError
 
-#: Accepted values of ``single_psu``.
-SINGLE_PSU_POLICIES: tuple[str, ...] = ("error", "centre", "collapse")
+#: How the survey reader labels a missing wave or group value (textkit.io.readers.MISSING_LABEL).
+_MISSING_LABEL = "(missing)"
+#: Values of the option's former name ``single_psu`` -> current values.
+_OLD_POLICIES = {"error": "refuse", "centre": "centre", "collapse": "merge"}
+
+#: Accepted values of ``one_cluster_stratum``.
+ONE_CLUSTER_POLICIES: tuple[str, ...] = ("refuse", "centre", "merge")
 
 
 @dataclass(frozen=True, eq=False)
@@ -84,7 +89,7 @@ class SurveyDesign:
         Sorted wave values (empty without waves).
     ids : tuple or None
         Unit ids (e.g. response ids) in unit order, when built with ``id=``.
-    single_psu : str
+    one_cluster_stratum : str
         Policy applied to single-PSU strata.
     columns : dict
         The columns each role was read from (``weight``, ``strata``, ``cluster``,
@@ -102,7 +107,7 @@ class SurveyDesign:
     wave: np.ndarray | None = None
     wave_labels: tuple[Any, ...] = ()
     ids: tuple[Any, ...] | None = None
-    single_psu: str = "error"
+    one_cluster_stratum: str = "refuse"
     columns: dict[str, str | None] = field(default_factory=dict)
 
     # ------------------------------------------------------------------ sizes
@@ -184,11 +189,11 @@ class SurveyDesign:
         strata: str | None = None,
         cluster: str | None = None,
         fpc: str | None = None,
-        single_psu: str = "error",
+        one_cluster_stratum: str = "refuse",
         *,
         wave: str | None = None,
         id: str | None = None,  # noqa: A002 - the survey config calls this role "id"
-        nest: bool = False,
+        cluster_ids_restart: bool = False,
         require_clusters: bool = False,
         source: str | None = None,
     ) -> SurveyDesign:
@@ -201,14 +206,14 @@ class SurveyDesign:
             coded table with one row per response x question.
         weight, strata, cluster, fpc : str, optional
             Column names. No weight: every unit weighs 1.
-        single_psu : {"error", "centre", "collapse"}, default "error"
+        one_cluster_stratum : {"refuse", "centre", "merge"}, default "refuse"
             Policy for strata with one PSU (see the module docstring).
         wave : str, optional
             Wave column; waves are independent samples (strata crossed with waves).
         id : str, optional
             Unit id column. Rows sharing an id are one unit and must agree on every
             design column; units are ordered by first appearance.
-        nest : bool, default False
+        cluster_ids_restart : bool, default False
             True when cluster ids are numbered within each stratum.
         require_clusters : bool, default False
             Refuse a design with strata but no cluster column (guards multi-stage
@@ -221,15 +226,15 @@ class SurveyDesign:
         DesignError
             Missing columns; missing, infinite or negative weights; all weights zero;
             missing stratum/cluster/wave values; clusters in several strata (with
-            ``nest=False``); fpc not constant within a stratum or below the sample
-            size; a single-PSU stratum under ``"error"``; strata without clusters
+            ``cluster_ids_restart=False``); fpc not constant within a stratum or below the sample
+            size; a single-PSU stratum under ``"refuse"``; strata without clusters
             under ``require_clusters``; fewer than two PSUs in the design or a wave.
         """
         import pandas as pd
 
-        if single_psu not in SINGLE_PSU_POLICIES:
-            raise DesignError(f"single_psu must be one of {', '.join(SINGLE_PSU_POLICIES)}, "
-                              f"not '{single_psu}'", source=source)
+        if one_cluster_stratum not in ONE_CLUSTER_POLICIES:
+            raise DesignError(f"one_cluster_stratum must be one of {', '.join(ONE_CLUSTER_POLICIES)}, "
+                              f"not '{one_cluster_stratum}'", source=source)
         roles = {"weight": weight, "strata": strata, "cluster": cluster, "fpc": fpc, "wave": wave, "id": id}
         for role, column in roles.items():
             if column is not None and column not in frame.columns:
@@ -295,11 +300,14 @@ class SurveyDesign:
 
         def codes_of(column: str, role: str) -> tuple[np.ndarray, np.ndarray]:
             values = units[column]
-            missing = values.isna().to_numpy()
+            missing = (values.isna() | (values.astype(object) == _MISSING_LABEL)).to_numpy()
             if missing.any():
-                pos = int(np.flatnonzero(missing)[0])
-                raise DesignError(f"the {role} value is missing; every response needs one",
-                                  source=source, row=row_of(pos), column=column)
+                positions = np.flatnonzero(missing)
+                rows = ", ".join(str(row_of(int(p))) for p in positions[:5]) + (", ..." if positions.size > 5 else "")
+                fix = "; give them a wave, or leave them out (--drop-missing-wave)" if role == "wave" else ""
+                raise DesignError(f"the {role} value is missing for {positions.size} response(s), in rows "
+                                  f"{rows}; every response needs one{fix}",
+                                  source=source, row=row_of(int(positions[0])), column=column)
             return pd.factorize(values, sort=True)
 
         # waves
@@ -330,7 +338,7 @@ class SurveyDesign:
         # PSUs
         if cluster is not None:
             cluster_codes, cluster_uniques = codes_of(cluster, "cluster")
-            if not nest:
+            if not cluster_ids_restart:
                 # one stratum per cluster id within a wave, or the clusters are not nested
                 # (a cluster id met again in another wave is a new PSU: waves are independent)
                 in_wave = wave_codes.astype(np.int64) * len(cluster_uniques) + cluster_codes
@@ -344,7 +352,7 @@ class SurveyDesign:
                     raise DesignError(
                         f"clusters are not nested in strata: cluster '{name}' is in stratum '{other}' "
                         f"and in stratum '{stratum_labels[stratum[pos]]}'; if cluster "
-                        "ids are numbered within each stratum, set nest: true",
+                        "ids are numbered within each stratum, set cluster_ids_restart: true",
                         source=source, row=row_of(pos), column=cluster)
             pair = stratum.astype(np.int64) * (int(cluster_codes.max()) + 1) + cluster_codes
             psu, _ = pd.factorize(pair, sort=True)
@@ -390,13 +398,13 @@ class SurveyDesign:
 
         # single-PSU strata
         singles = np.flatnonzero(stratum_psus < 2)
-        if singles.size and single_psu == "error":
+        if singles.size and one_cluster_stratum == "refuse":
             names = ", ".join(f"'{stratum_labels[h]}'" for h in singles[:5])
             more = f" and {singles.size - 5} more" if singles.size > 5 else ""
             raise DesignError(f"stratum {names}{more} has only one PSU, so its variance cannot be estimated; "
-                              "merge it with another stratum or choose single_psu: centre or collapse",
+                              "merge it with another stratum or choose one_cluster_stratum: centre or merge",
                               source=source, column=strata or cluster)
-        if singles.size and single_psu == "collapse":
+        if singles.size and one_cluster_stratum == "merge":
             mapping, stratum_labels, stratum_fpc = _collapse(stratum_psus, stratum_wave, stratum_labels,
                                                             stratum_fpc, source=source)
             stratum = mapping[stratum]
@@ -410,7 +418,7 @@ class SurveyDesign:
             stratum_psus=stratum_psus, stratum_fpc=np.asarray(stratum_fpc, dtype=float),
             stratum_wave=np.asarray(stratum_wave, dtype=np.int64), stratum_labels=tuple(stratum_labels),
             wave=wave_codes.astype(np.int64) if wave is not None else None, wave_labels=wave_labels,
-            ids=ids, single_psu=single_psu, columns=dict(roles),
+            ids=ids, one_cluster_stratum=one_cluster_stratum, columns=dict(roles),
         )
         psus_per_wave = np.bincount(design.stratum_wave, weights=design.stratum_psus, minlength=n_waves)
         if design.n_psus < 2:
@@ -422,6 +430,40 @@ class SurveyDesign:
             raise DesignError(f"{where} has no degrees of freedom (#PSU - #strata < 1), so no variance can "
                               "be estimated; collapse strata or add PSUs", source=source, column=wave)
         return design
+
+    @classmethod
+    def from_roles(cls, frame: Any, roles: dict[str, Any], *, id: str | None = None,  # noqa: A002
+                   source: str | None = None) -> SurveyDesign:
+        """Build the design from a roles mapping (``SurveyConfig.roles()`` or a manifest's ``roles``).
+
+        Manifests written before the design options were renamed (``single_psu``
+        with ``error/centre/collapse``, ``nest``) are read too.
+        """
+        policy = roles.get("one_cluster_stratum") or _OLD_POLICIES.get(roles.get("single_psu"), "refuse")
+        restart = roles.get("cluster_ids_restart", roles.get("nest", False))
+        id_column = id if id is not None else roles.get("id")
+        if id_column is not None and id_column not in frame.columns:
+            id_column = "response_id" if "response_id" in frame.columns else None
+        return cls.from_frame(frame, roles.get("weight"), roles.get("strata"), roles.get("cluster"),
+                              roles.get("fpc"), policy, wave=roles.get("wave"), id=id_column,
+                              cluster_ids_restart=bool(restart),
+                              require_clusters=bool(roles.get("require_clusters", False)), source=source)
+
+    @classmethod
+    def from_config(cls, config: Any, frame: Any, *, id: str | None = None,  # noqa: A002
+                    source: str | None = None) -> SurveyDesign:
+        """Build the design from a :class:`textkit.io.config.SurveyConfig` and the survey (or coded) frame.
+
+        ``id`` defaults to the config's id column, or ``response_id`` when the
+        frame is a coded table.
+        """
+        return cls.from_roles(frame, config.roles(), id=id, source=source or str(config.survey))
+
+    def __repr__(self) -> str:
+        weights = "weighted" if self.columns.get("weight") else "unweighted"
+        waves = f", {len(self.wave_labels)} waves" if self.wave_labels else ""
+        return (f"<SurveyDesign: {self.n_units} responses, {weights}, {self.n_strata} strata, "
+                f"{self.n_psus} PSUs, df {self.df}{waves}>")
 
     def unit_index(self, ids: Any) -> np.ndarray:
         """Positions of ``ids`` among the design's unit ids, shape (len(ids),); -1 if absent."""

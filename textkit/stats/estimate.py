@@ -30,7 +30,7 @@ Choices
   never in a named group.
 * Degrees of freedom: ``#PSU - #strata`` of the design the domain lives in (the
   wave's sample for per-wave rows, the whole design for pooled rows).
-* Intervals (:func:`confidence_interval`): ``logit``, ``korn-graubard`` (beta)
+* Intervals (:func:`confidence_interval`): ``logit``, ``korn-graubard``
   and ``wilson`` (effective n, t quantile). An estimate of exactly 0 or 1, or
   with a zero variance, has no design-based effective n; it then uses the Kish
   effective n of the domain and, for ``logit``, the Korn-Graubard interval (the
@@ -48,7 +48,6 @@ Choices
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -57,516 +56,80 @@ from scipy import sparse, stats
 
 from ..errors import AnalysisError
 from .design import SurveyDesign
+from .domains import (  # noqa: F401 (re-exported)
+    DomainTotals,
+    TargetBlock,
+    _linear_covariance,
+    domain_totals,
+    union_estimates,
+)
+from .intervals import (  # noqa: F401 (re-exported)
+    CI_METHODS,
+    DEFAULT_METHOD,
+    _method_name,
+    beta_interval,
+    confidence_interval,
+    wilson_interval,
+)
+from .rao_scott import rao_scott_table
+from .rules import (  # noqa: F401 (re-exported)
+    BASE_WIDTH_RULE,
+    DEFAULT_RULE,
+    RSE_16_33_RULE,
+    RSE_25_50_RULE,
+    RULES,
+    ReliabilityRule,
+)
 
 #: Label of totals (group variable and group) and pooled waves.
 ALL = "(all)"
 #: Label of "the rest of the sample" in group comparisons.
 REST = "(rest)"
-#: Interval methods accepted by :func:`confidence_interval` (``"beta"`` is an alias).
-CI_METHODS: tuple[str, ...] = ("logit", "korn-graubard", "wilson")
-#: Default interval method, chosen by the coverage study (benchmarks/coverage.py).
-DEFAULT_METHOD = "korn-graubard"
 
-PREVALENCE_COLUMNS = ["question", "theme", "group_var", "group", "wave", "n", "weighted_n", "n_eff",
-                      "estimate", "se", "ci_low", "ci_high", "df", "deff", "method", "flag"]
-COMPARISON_COLUMNS = ["question", "theme", "group_var", "group_a", "group_b", "wave_a", "wave_b",
+#: Separator of the parts of a crossed group variable (``market*age_band``).
+CROSS = "*"
+#: Separator of the values of a crossed group (``Domestic / 16-34``).
+CROSS_LABEL = " / "
+#: Bases of a share: respondents who answered the question, or all respondents.
+BASES: tuple[str, ...] = ("answered", "all")
+#: Multiple-testing families for the Benjamini-Hochberg q-values.
+FAMILIES: tuple[str, ...] = ("question-variable", "table")
+
+PREVALENCE_COLUMNS = ["question", "question_text", "theme", "theme_label", "group_var", "group", "wave", "n",
+                      "n_raising", "weighted_n", "n_eff", "estimate", "se", "ci_low", "ci_high", "df", "deff",
+                      "method", "flag", "flag_reason"]
+#: Columns added to the prevalence table with ``totals=True``.
+TOTAL_COLUMNS = ["total", "total_se", "total_ci_low", "total_ci_high"]
+COMPARISON_COLUMNS = ["question", "theme", "theme_label", "group_var", "group_a", "group_b", "wave_a", "wave_b",
                       "estimate_a", "estimate_b", "difference", "se", "ci_low", "ci_high", "p_value",
-                      "q_value", "test"]
-GROUP_TEST_COLUMNS = ["question", "theme", "group_var", "wave", "n_groups", "n", "pearson_chi2",
+                      "q_value", "test", "family"]
+GROUP_TEST_COLUMNS = ["question", "theme", "theme_label", "group_var", "wave", "n_groups", "n", "pearson_chi2",
                       "mean_deff", "f_statistic", "f_df_num", "f_df_den", "f_p_value", "f_q_value",
-                      "chi2_first_order", "chi2_df", "chi2_p_value", "chi2_q_value"]
-
-
-# ---------------------------------------------------------------------------
-# Publishing rules
-# ---------------------------------------------------------------------------
-@dataclass(frozen=True)
-class ReliabilityRule:
-    """A rule that flags estimates ``ok``, ``caution`` or ``suppress``.
-
-    Parameters
-    ----------
-    name : str
-        Short name (used by the CLI's ``--rule``).
-    origin : str
-        Where the thresholds come from.
-    min_n : int, default 30
-        Unweighted base below this: ``suppress``.
-    min_effective_n : float or None, default None
-        Design effective sample size (the ``n`` behind the interval: ``p(1-p)/V``
-        capped at ``n``, or the Kish n at 0 and 1) below this: ``suppress``.
-    suppress_rse, caution_rse : float or None
-        Relative standard error at or above this: ``suppress`` / ``caution``. The
-        RSE is taken on the smaller of the share and its complement,
-        ``se / min(p, 1 - p)``, so a share near 0 and its complement near 1 are
-        judged alike; estimates of exactly 0 or 1 (SE 0) are not judged by RSE.
-    max_ci_width : float or None
-        Interval width at or above this: ``suppress``.
-    max_relative_ci_width : float or None
-        Interval width over the smaller of ``p`` and ``1 - p`` above this:
-        ``suppress``, but only when the width is above ``relative_width_floor``
-        (a narrow interval around a small share is informative).
-    relative_width_floor : float, default 0.05
-    min_df : int or None
-        Degrees of freedom below this: ``caution``.
-    caution_at_bounds : bool, default True
-        Estimates of exactly 0 or 1 are ``caution``: their SE is 0 and says nothing;
-        only the interval (from the Kish effective n) carries the uncertainty.
-    """
-
-    name: str
-    origin: str
-    min_n: int = 30
-    min_effective_n: float | None = None
-    suppress_rse: float | None = None
-    caution_rse: float | None = 0.30
-    max_ci_width: float | None = None
-    max_relative_ci_width: float | None = None
-    relative_width_floor: float = 0.05
-    min_df: int | None = None
-    caution_at_bounds: bool = True
-
-    def flags(self, n: Any, estimate: Any, se: Any, ci_low: Any, ci_high: Any, df: Any,
-              effective_n: Any) -> np.ndarray:
-        """Flag each estimate.
-
-        Parameters
-        ----------
-        n, estimate, se, ci_low, ci_high, df, effective_n : array-like of shape (m,)
-            Unweighted base, estimate (0-1), SE, interval, degrees of freedom and
-            design effective n.
-
-        Returns
-        -------
-        ndarray of str of shape (m,)
-            ``"ok"``, ``"caution"`` or ``"suppress"``; a missing estimate is ``suppress``.
-        """
-        n = np.asarray(n, float)
-        p = np.asarray(estimate, float)
-        se = np.asarray(se, float)
-        width = np.asarray(ci_high, float) - np.asarray(ci_low, float)
-        df = np.asarray(df, float)
-        effective_n = np.asarray(effective_n, float)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            smaller = np.minimum(p, 1.0 - p)
-            rse = np.where(smaller > 0, se / smaller, np.nan)
-            relative_width = np.where(smaller > 0, width / smaller, np.inf)
-        suppress = ~np.isfinite(p) | (n < self.min_n)
-        caution = np.zeros(p.shape, dtype=bool)
-        if self.min_effective_n is not None:
-            suppress |= effective_n < self.min_effective_n
-        if self.suppress_rse is not None:
-            suppress |= rse >= self.suppress_rse
-        if self.max_ci_width is not None:
-            suppress |= width >= self.max_ci_width
-        if self.max_relative_ci_width is not None:
-            suppress |= (width > self.relative_width_floor) & (relative_width > self.max_relative_ci_width)
-        if self.caution_rse is not None:
-            caution |= rse >= self.caution_rse
-        if self.min_df is not None:
-            caution |= df < self.min_df
-        if self.caution_at_bounds:
-            caution |= (p == 0) | (p == 1)
-        return np.where(suppress, "suppress", np.where(caution, "caution", "ok")).astype(object)
-
-
-#: Default rule, after the US National Center for Health Statistics: the classic
-#: presentation rule (unweighted base below 30 not shown, RSE of 30% or more
-#: flagged) with the tests of NCHS's 2017 standard for proportions, which is built
-#: on Korn-Graubard intervals (effective n below 30, interval width 0.30 or more, or
-#: width above 0.05 and relative width above 130%: suppressed; df below 8: flagged).
-NCHS_LIKE = ReliabilityRule(
-    name="nchs-like",
-    origin="US NCHS: base below 30 suppressed, RSE 30%+ flagged; NCHS 2017 proportions standard "
-           "(effective n < 30, CI width >= 0.30, relative CI width > 130% suppressed; df < 8 flagged)",
-    min_n=30, min_effective_n=30, caution_rse=0.30, max_ci_width=0.30, max_relative_ci_width=1.30,
-    relative_width_floor=0.05, min_df=8,
-)
-#: After the Australian Bureau of Statistics: RSE 25-50% "use with caution", over 50% not reliable.
-ABS_LIKE = ReliabilityRule(
-    name="abs-like", origin="Australian Bureau of Statistics: RSE 25%+ annotated, 50%+ too unreliable",
-    min_n=0, caution_rse=0.25, suppress_rse=0.50,
-)
-#: After Statistics Canada (secondary source): CV above 16.5% caution, above 33.3% withheld.
-STATCAN_LIKE = ReliabilityRule(
-    name="statcan-like", origin="Statistics Canada (secondary source): CV 16.5%+ caution, 33.3%+ withheld",
-    min_n=0, caution_rse=0.165, suppress_rse=0.333,
-)
-#: Shipped rules by name.
-RULES: dict[str, ReliabilityRule] = {rule.name: rule for rule in (NCHS_LIKE, ABS_LIKE, STATCAN_LIKE)}
-DEFAULT_RULE = NCHS_LIKE
-
-
-# ---------------------------------------------------------------------------
-# Confidence intervals
-# ---------------------------------------------------------------------------
-def _method_name(method: str) -> str:
-    name = {"beta": "korn-graubard", "kg": "korn-graubard"}.get(method, method)
-    if name not in CI_METHODS:
-        raise AnalysisError(f"unknown interval method '{method}'; choose one of {', '.join(CI_METHODS)}")
-    return name
-
-
-def wilson_interval(estimate: Any, n: Any, critical: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Wilson score interval for a share ``estimate`` on ``n`` (possibly effective) units.
-
-    Parameters
-    ----------
-    estimate, n, critical : array-like
-        Share (0-1), sample size and critical value (normal or t quantile).
-
-    Returns
-    -------
-    low, high : ndarray
-    """
-    p = np.asarray(estimate, float)
-    n = np.asarray(n, float)
-    z2 = np.asarray(critical, float) ** 2
-    denominator = 1.0 + z2 / n
-    centre = (p + z2 / (2 * n)) / denominator
-    half = np.sqrt(z2) * np.sqrt(p * (1 - p) / n + z2 / (4 * n * n)) / denominator
-    return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
-
-
-def beta_interval(estimate: Any, n: Any, confidence: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
-    """Clopper-Pearson (beta) interval with a possibly non-integer ``n`` and count ``n * estimate``.
-
-    Defined at 0 (lower end 0) and 1 (upper end 1).
-    """
-    p = np.asarray(estimate, float)
-    n = np.asarray(n, float)
-    alpha = 1.0 - confidence
-    x = p * n
-    with np.errstate(invalid="ignore", divide="ignore"):
-        low = np.where(p <= 0, 0.0, stats.beta.ppf(alpha / 2, np.maximum(x, 1e-300), n - x + 1))
-        high = np.where(p >= 1, 1.0, stats.beta.ppf(1 - alpha / 2, x + 1, np.maximum(n - x, 1e-300)))
-    bad = ~np.isfinite(p) | ~(n > 0)
-    return np.where(bad, np.nan, low), np.where(bad, np.nan, high)
-
-
-def confidence_interval(estimate: Any, variance: Any, n: Any, kish_n: Any, df: Any,
-                        method: str = DEFAULT_METHOD, confidence: float = 0.95
-                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Design-based confidence interval of survey proportions (vectorised).
-
-    Parameters
-    ----------
-    estimate, variance : array-like of shape (m,)
-        Share (0-1) and its design variance.
-    n : array-like of shape (m,)
-        Unweighted base.
-    kish_n : array-like of shape (m,)
-        Kish effective n of the domain, used where the design effective n is
-        undefined (estimate 0 or 1, or variance 0).
-    df : array-like of shape (m,)
-        Design degrees of freedom.
-    method : {"logit", "korn-graubard", "wilson"}
-        ``logit``: ``logit(p) +- t_df se / (p (1 - p))`` back-transformed.
-        ``korn-graubard`` (Korn & Graubard 1998): Clopper-Pearson on the effective
-        n ``p(1-p)/V`` (capped at ``n``) times ``(t_{n-1} / t_df)^2``.
-        ``wilson``: Wilson score interval on the effective n with ``t_df``.
-    confidence : float, default 0.95
-
-    Returns
-    -------
-    low, high : ndarray of shape (m,)
-    method_used : ndarray of str of shape (m,)
-        The method actually used (``logit`` falls back to ``korn-graubard`` at 0 and 1).
-    effective_n : ndarray of shape (m,)
-        The design effective n behind the interval (before the df adjustment).
-    """
-    name = _method_name(method)
-    p = np.asarray(estimate, float)
-    v = np.asarray(variance, float)
-    n = np.asarray(n, float)
-    df = np.asarray(df, float)
-    alpha = 1.0 - confidence
-    degenerate = (p <= 0) | (p >= 1) | ~(v > 0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        design_n = np.where(degenerate, np.asarray(kish_n, float), np.minimum(p * (1 - p) / v, n))
-        t_df = stats.t.ppf(1 - alpha / 2, df)
-    if name == "wilson":
-        low, high = wilson_interval(p, design_n, t_df)
-        used = np.full(p.shape, "wilson", dtype=object)
-    else:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            t_n = stats.t.ppf(1 - alpha / 2, np.maximum(n - 1, 1))
-            ratio = np.where(n >= 2, (t_n / t_df) ** 2, 1.0)
-        low, high = beta_interval(p, design_n * ratio, confidence)
-        used = np.full(p.shape, "korn-graubard", dtype=object)
-        if name == "logit":
-            with np.errstate(divide="ignore", invalid="ignore"):
-                centre = np.log(p / (1 - p))
-                half = t_df * np.sqrt(v) / (p * (1 - p))
-                logit_low = 1 / (1 + np.exp(-(centre - half)))
-                logit_high = 1 / (1 + np.exp(-(centre + half)))
-            low = np.where(degenerate, low, logit_low)
-            high = np.where(degenerate, high, logit_high)
-            used = np.where(degenerate, "korn-graubard", "logit").astype(object)
-    missing = ~np.isfinite(p)
-    low = np.where(missing, np.nan, low)
-    high = np.where(missing, np.nan, high)
-    return low, high, used, design_n
-
-
-# ---------------------------------------------------------------------------
-# Vectorised core: PSU x domain totals and the covariance of domain scores
-# ---------------------------------------------------------------------------
-@dataclass
-class DomainTotals:
-    """Totals and score covariances of ``n_domains`` base domains (all themes at once).
-
-    Attributes
-    ----------
-    weight : ndarray of shape (n_domains,)
-        Sum of weights (weighted n).
-    count : ndarray of shape (n_domains,)
-        Number of rows (unweighted n).
-    weight_sq : ndarray of shape (n_domains,)
-        Sum of squared weights (for the Kish effective n).
-    estimate : ndarray of shape (n_domains, n_themes)
-        Weighted shares (NaN for an empty domain).
-    zz : ndarray of shape (n_themes, n_domains, n_domains), or (n_themes, n_domains) if diagonal
-        Design covariance of the ratio scores ``z_d`` (the diagonal is ``Var(p_d)``).
-    zs : same shape as ``zz``
-        Covariance of ``z_d`` with the weight totals ``s_e`` of the domains.
-    ss : ndarray of shape (n_domains, n_domains), or (n_domains,) if diagonal
-        Covariance of the weight totals.
-    """
-
-    weight: np.ndarray
-    count: np.ndarray
-    weight_sq: np.ndarray
-    estimate: np.ndarray
-    zz: np.ndarray
-    zs: np.ndarray
-    ss: np.ndarray
-
-    @property
-    def variance(self) -> np.ndarray:
-        """Design variance of each domain's shares, shape (n_domains, n_themes)."""
-        if self.zz.ndim == 2:
-            return self.zz.T.copy()
-        return np.diagonal(self.zz, axis1=1, axis2=2).T.copy()
-
-
-def _compact(keys: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
-    """Sorted distinct values of ``keys`` (all in [0, size)) and each key's position among them."""
-    if size <= max(8 * keys.size, 1 << 20):
-        present = np.zeros(size, dtype=bool)
-        present[keys] = True
-        distinct = np.flatnonzero(present)
-        position = np.cumsum(present) - 1
-        return distinct, position[keys]
-    distinct, inverse = np.unique(keys, return_inverse=True)
-    return distinct, inverse
-
-
-def _cross_sums(group: np.ndarray, variable: np.ndarray, factor: np.ndarray, left: np.ndarray,
-                right: np.ndarray, n_variables: int, diagonal: bool) -> np.ndarray:
-    """``sum_g factor_g sum_{i, j in g} left_i * right_j`` by (variable_i, variable_j).
-
-    ``group`` must be sorted. Returns shape (n_variables**2, width) or, when
-    ``diagonal`` (pairs i == j only; entries are unique per group and variable),
-    (n_variables, width).
-    """
-    m, width = left.shape
-    if diagonal:
-        first, second = np.arange(m), np.arange(m)
-        key = variable
-        size = n_variables
-    else:
-        starts = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
-        lengths = np.diff(np.r_[starts, m])
-        run = np.repeat(np.arange(starts.size), lengths)
-        repeat = lengths[run]
-        first = np.repeat(np.arange(m), repeat)
-        offset = np.arange(first.size) - np.repeat(np.cumsum(repeat) - repeat, repeat)
-        second = np.repeat(starts[run], repeat) + offset
-        key = variable[first] * n_variables + variable[second]
-        size = n_variables * n_variables
-    out = np.zeros((size, width))
-    chunk = max(1, 8_000_000 // max(width, 1))
-    for start in range(0, first.size, chunk):
-        i, j = first[start:start + chunk], second[start:start + chunk]
-        products = left[i] * right[j] * factor[group[i]][:, None]
-        collect = sparse.csr_matrix((np.ones(i.size), (key[start:start + chunk], np.arange(i.size))),
-                                    shape=(size, i.size))
-        out += collect @ products
-    return out
-
-
-def domain_totals(Y: Any, unit: np.ndarray, domain: np.ndarray, n_domains: int, design: SurveyDesign,
-                  diagonal: bool = False) -> DomainTotals:
-    """Weighted shares of every theme in every base domain, with their design covariance.
-
-    Parameters
-    ----------
-    Y : sparse matrix or ndarray of shape (n_rows, n_themes)
-        0/1 theme indicators.
-    unit : ndarray of int of shape (n_rows,)
-        Design unit (response) of each row.
-    domain : ndarray of int of shape (n_rows,)
-        Base domain of each row, 0..n_domains-1, or -1 outside every domain
-        (e.g. did not answer). Domains must not overlap (one code per row).
-    n_domains : int
-        Number of base domains.
-    design : SurveyDesign
-    diagonal : bool, default False
-        Only the variances (no covariances between domains): for many domains.
-
-    Returns
-    -------
-    DomainTotals
-    """
-    inside = domain >= 0
-    rows = np.flatnonzero(inside)
-    d_rows = domain[rows].astype(np.int64)
-    u_rows = unit[rows]
-    w_rows = design.weights[u_rows]
-    psu_rows = design.psu[u_rows]
-    k = Y.shape[1]
-    cell_keys, cell_of_row = _compact(psu_rows * n_domains + d_rows, design.n_psus * n_domains)
-    m = cell_keys.size
-    cell_psu = cell_keys // n_domains
-    cell_domain = cell_keys % n_domains
-    cell_weight = np.bincount(cell_of_row, weights=w_rows, minlength=m)
-    gather = sparse.csr_matrix((w_rows, (cell_of_row, np.arange(rows.size))), shape=(m, rows.size))
-    y_rows = Y[rows] if sparse.issparse(Y) else np.asarray(Y)[rows]
-    cell_yes = gather @ y_rows
-    cell_yes = cell_yes.toarray() if sparse.issparse(cell_yes) else np.asarray(cell_yes, dtype=float)
-
-    weight = np.bincount(cell_domain, weights=cell_weight, minlength=n_domains)
-    count = np.bincount(d_rows, minlength=n_domains).astype(float)
-    weight_sq = np.bincount(d_rows, weights=w_rows ** 2, minlength=n_domains)
-    by_domain = sparse.csr_matrix((np.ones(m), (cell_domain, np.arange(m))), shape=(n_domains, m))
-    yes = by_domain @ cell_yes
-    with np.errstate(divide="ignore", invalid="ignore"):
-        estimate = np.where(weight[:, None] > 0, yes / weight[:, None], np.nan)
-        inverse = np.where(weight > 0, 1.0 / weight, 0.0)
-    safe = np.nan_to_num(estimate)
-    scores = (cell_yes - safe[cell_domain] * cell_weight[:, None]) * inverse[cell_domain][:, None]
-
-    scale, centre = design.variance_factors()
-    ones = np.ones((1, k))
-    # PSU level: sum over PSUs of scale_h * (z z', z s', s s')
-    left = np.hstack([scores, scores, cell_weight[:, None]])
-    right = np.hstack([scores, cell_weight[:, None] * ones, cell_weight[:, None]])
-    total = _cross_sums(cell_psu, cell_domain, scale[design.psu_stratum], left, right, n_domains, diagonal)
-    # stratum level: minus centre_h * (stratum sums)(stratum sums)'
-    cell_stratum = design.psu_stratum[cell_psu]
-    sum_keys, sum_of_cell = _compact(cell_stratum * n_domains + cell_domain, design.n_strata * n_domains)
-    summing = sparse.csr_matrix((np.ones(m), (sum_of_cell, np.arange(m))), shape=(sum_keys.size, m))
-    stratum_scores = summing @ scores
-    stratum_weight = summing @ cell_weight
-    left = np.hstack([stratum_scores, stratum_scores, stratum_weight[:, None]])
-    right = np.hstack([stratum_scores, stratum_weight[:, None] * ones, stratum_weight[:, None]])
-    total -= _cross_sums(sum_keys // n_domains, sum_keys % n_domains, centre, left, right, n_domains,
-                         diagonal)
-    if diagonal:
-        zz, zs, ss = total[:, :k].T, total[:, k:2 * k].T, total[:, 2 * k]
-    else:
-        cube = total.reshape(n_domains, n_domains, 2 * k + 1)
-        zz = np.ascontiguousarray(np.moveaxis(cube[:, :, :k], 2, 0))
-        zs = np.ascontiguousarray(np.moveaxis(cube[:, :, k:2 * k], 2, 0))
-        ss = cube[:, :, 2 * k]
-    return DomainTotals(weight=weight, count=count, weight_sq=weight_sq, estimate=estimate,
-                        zz=zz, zs=zs, ss=ss)
-
-
-def _linear_covariance(totals: DomainTotals, on_scores: np.ndarray, on_weights: np.ndarray) -> np.ndarray:
-    """Covariance of linear combinations ``sum_d a_rd z_d + b_rd s_d`` of the base variables.
-
-    Parameters
-    ----------
-    on_scores : ndarray of shape (r, n_domains) or (n_themes, r, n_domains)
-    on_weights : ndarray of shape (n_themes, r, n_domains)
-
-    Returns
-    -------
-    ndarray of shape (n_themes, r, r)
-    """
-    n_themes = totals.zz.shape[0]
-    a = on_scores if on_scores.ndim == 3 else np.broadcast_to(on_scores, (n_themes, *on_scores.shape))
-    b = on_weights
-    aza = a @ totals.zz @ np.swapaxes(a, 1, 2)
-    azb = a @ totals.zs @ np.swapaxes(b, 1, 2)
-    bsb = b @ totals.ss @ np.swapaxes(b, 1, 2)
-    return aza + azb + np.swapaxes(azb, 1, 2) + bsb
-
-
-def union_estimates(totals: DomainTotals, membership: np.ndarray
-                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Shares of unions of base domains and their full covariance (delta method).
-
-    Parameters
-    ----------
-    totals : DomainTotals
-        From :func:`domain_totals` (not diagonal).
-    membership : ndarray of 0/1 of shape (n_targets, n_domains)
-        Which base domains make up each target domain.
-
-    Returns
-    -------
-    estimate : ndarray of shape (n_targets, n_themes)
-    covariance : ndarray of shape (n_themes, n_targets, n_targets)
-    weight, count, weight_sq : ndarray of shape (n_targets,)
-    """
-    member = membership.astype(float)
-    weight = member @ totals.weight
-    count = member @ totals.count
-    weight_sq = member @ totals.weight_sq
-    safe = np.nan_to_num(totals.estimate)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        estimate = np.where(weight[:, None] > 0, (member @ (totals.weight[:, None] * safe)) / weight[:, None],
-                            np.nan)
-        inverse = np.where(weight > 0, 1.0 / weight, 0.0)
-    target_safe = np.nan_to_num(estimate)
-    on_scores = member * totals.weight[None, :] * inverse[:, None]
-    # d p_A / d s_d = (p_d - p_A) / W_A for d in A; shape (themes, targets, domains)
-    on_weights = (member[None, :, :] * (safe.T[:, None, :] - target_safe.T[:, :, None])
-                  * inverse[None, :, None])
-    covariance = _linear_covariance(totals, on_scores, on_weights)
-    return estimate, covariance, weight, count, weight_sq
+                      "chi2_first_order", "chi2_df", "chi2_p_value", "chi2_q_value", "family"]
 
 
 # ---------------------------------------------------------------------------
 # Tables
 # ---------------------------------------------------------------------------
-def add_q_values(frame: pd.DataFrame, p_column: str = "p_value", q_column: str = "q_value") -> pd.DataFrame:
-    """Benjamini-Hochberg q-values over every row of ``frame`` with a p-value (statsmodels)."""
+def add_q_values(frame: pd.DataFrame, p_column: str = "p_value", q_column: str = "q_value",
+                 by: str | None = None) -> pd.DataFrame:
+    """Benjamini-Hochberg q-values (statsmodels) over the rows of ``frame`` with a p-value.
+
+    With ``by``, one family per value of that column; otherwise the whole frame.
+    """
     from statsmodels.stats.multitest import multipletests
 
     p = frame[p_column].to_numpy(dtype=float)
     q = np.full(p.shape, np.nan)
-    known = np.isfinite(p)
-    if known.any():
-        q[known] = multipletests(p[known], method="fdr_bh")[1]
+    families = [np.ones(len(frame), dtype=bool)] if by is None else \
+        [(frame[by] == value).to_numpy() for value in pd.unique(frame[by])]
+    for member in families:
+        known = member & np.isfinite(p)
+        if known.any():
+            q[known] = multipletests(p[known], method="fdr_bh")[1]
     frame = frame.copy()
     frame[q_column] = q
     return frame
-
-
-@dataclass
-class _Block:
-    """All targets of one question x group variable."""
-
-    question: Any
-    group_var: str
-    groups: list[str]          # named groups (labels), G
-    n_base_groups: int         # G plus 1 if some rows lack a group value
-    waves: list[Any]           # wave labels (empty without waves)
-    totals: DomainTotals
-    target_group: list[str] = field(default_factory=list)
-    target_wave: list[Any] = field(default_factory=list)
-    target_kind: list[str] = field(default_factory=list)   # "group", "total", "rest"
-    membership: np.ndarray | None = None
-    estimate: np.ndarray | None = None
-    covariance: np.ndarray | None = None
-    weight: np.ndarray | None = None
-    count: np.ndarray | None = None
-    weight_sq: np.ndarray | None = None
-    df: np.ndarray | None = None
 
 
 class SurveyAnalysis:
@@ -574,24 +137,50 @@ class SurveyAnalysis:
 
     Build it with :func:`analyse`; call :meth:`prevalence`, :meth:`group_comparisons`,
     :meth:`wave_comparisons`, :meth:`comparisons` and :meth:`group_tests`.
+
+    Attributes
+    ----------
+    themes : list of str
+        Themes and nets, in output order.
+    labels, question_text : dict
+        Readable theme labels and question wording (ids where none was given).
+    dropped_responses : int
+        Responses left out for a missing wave (``missing_wave="drop"``).
     """
 
-    def __init__(self, blocks: list[_Block], themes: list[str], design: SurveyDesign, method: str,
-                 confidence: float, rule: ReliabilityRule) -> None:
+    def __init__(self, blocks: list[TargetBlock], themes: list[str], design: SurveyDesign, method: str,
+                 confidence: float, rule: ReliabilityRule, *, labels: dict[str, str] | None = None,
+                 question_text: dict[Any, str] | None = None, family: str = "question-variable",
+                 totals: bool = False, base: str = "answered", dropped_responses: int = 0) -> None:
         self.blocks = blocks
         self.themes = themes
         self.design = design
         self.method = method
         self.confidence = confidence
         self.rule = rule
+        self.labels = {t: (labels or {}).get(t, t) for t in themes}
+        self.question_text = dict(question_text or {})
+        self.family = family
+        self.totals = totals
+        self.base = base
+        self.dropped_responses = dropped_responses
+
+    def __repr__(self) -> str:
+        questions = list(dict.fromkeys(b.question for b in self.blocks))
+        variables = list(dict.fromkeys(b.group_var for b in self.blocks))
+        waves = self.blocks[0].waves if self.blocks else []
+        return (f"<SurveyAnalysis: {len(questions)} question(s), {len(self.themes)} theme(s), "
+                f"by {', '.join(map(str, variables))}, {len(waves) or 'no'} wave(s), method {self.method}, "
+                f"rule {self.rule.name}, base {self.base}>")
 
     # -------------------------------------------------------------- prevalence
     def prevalence(self) -> pd.DataFrame:
         """One row per question x theme x group variable x group x wave (totals included).
 
-        Columns: ``question, theme, group_var, group, wave, n, weighted_n, n_eff,
-        estimate, se, ci_low, ci_high, df, deff, method, flag``.
+        Columns: :data:`PREVALENCE_COLUMNS` (and :data:`TOTAL_COLUMNS` when the
+        analysis was built with ``totals=True``).
         """
+        columns = PREVALENCE_COLUMNS + (TOTAL_COLUMNS if self.totals else [])
         frames = []
         seen_totals: set[Any] = set()
         for block in self.blocks:
@@ -599,33 +188,48 @@ class SurveyAnalysis:
             if block.question in seen_totals:
                 keep = [i for i in keep if block.target_kind[i] != "total"]
             seen_totals.add(block.question)
-            if not keep:
-                continue
-            keep_idx = np.asarray(keep)
-            k = len(self.themes)
-            t = keep_idx.size
-            variance = np.diagonal(block.covariance, axis1=1, axis2=2)[:, keep_idx].T   # (t, k)
-            frames.append(pd.DataFrame({
-                "question": block.question,
-                "theme": np.tile(self.themes, t),
-                "group_var": np.repeat([ALL if block.target_kind[i] == "total" else block.group_var
-                                        for i in keep], k),
-                "group": np.repeat([block.target_group[i] for i in keep], k),
-                "wave": np.repeat(np.asarray([block.target_wave[i] for i in keep], dtype=object), k),
-                "n": np.repeat(block.count[keep_idx], k).astype(np.int64),
-                "weighted_n": np.repeat(block.weight[keep_idx], k),
-                "_weight_sq": np.repeat(block.weight_sq[keep_idx], k),
-                "estimate": block.estimate[keep_idx].ravel(),
-                "_variance": np.maximum(variance.ravel(), 0.0),
-                "df": np.repeat(block.df[keep_idx], k),
-            }))
+            if keep:
+                frames.append(self._estimate_rows(block, np.asarray(keep)))
         if not frames:
-            return pd.DataFrame(columns=PREVALENCE_COLUMNS)
-        table = pd.concat(frames, ignore_index=True)
+            return pd.DataFrame(columns=columns)
+        return self._add_precision(pd.concat(frames, ignore_index=True))[columns]
+
+    def _estimate_rows(self, block: TargetBlock, keep: np.ndarray) -> pd.DataFrame:
+        """Targets ``keep`` of ``block`` x every theme: ids, bases, estimate and variance."""
+        k = len(self.themes)
+        t = keep.size
+        variance = np.diagonal(block.covariance, axis1=1, axis2=2)[:, keep].T   # (t, k)
+        frame = pd.DataFrame({
+            "question": block.question,
+            "question_text": self.question_text.get(block.question, str(block.question)),
+            "theme": np.tile(self.themes, t),
+            "theme_label": np.tile([self.labels[x] for x in self.themes], t),
+            "group_var": np.repeat([ALL if block.target_kind[i] == "total" else block.group_var
+                                    for i in keep], k),
+            "group": np.repeat([block.target_group[i] for i in keep], k),
+            "wave": np.repeat(np.asarray([block.target_wave[i] for i in keep], dtype=object), k),
+            "n": np.repeat(block.count[keep], k).astype(np.int64),
+            "n_raising": np.rint(block.count_yes[keep].ravel()).astype(np.int64),
+            "weighted_n": np.repeat(block.weight[keep] * block.totals.scale, k),
+            "_weight": np.repeat(block.weight[keep], k),
+            "_weight_sq": np.repeat(block.weight_sq[keep], k),
+            "estimate": block.estimate[keep].ravel(),
+            "_variance": np.maximum(variance.ravel(), 0.0),
+            "df": np.repeat(block.df[keep], k),
+        })
+        if self.totals:
+            total, total_variance = target_totals(block)
+            frame["total"] = total[keep].ravel()
+            frame["_total_variance"] = total_variance[keep].ravel()
+        return frame
+
+    def _add_precision(self, table: pd.DataFrame) -> pd.DataFrame:
+        """Effective n, SE, design effect, interval, method, flag and its reason of every row."""
+        empty = ~(table["_weight"].to_numpy() > 0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            table["n_eff"] = table["weighted_n"] ** 2 / table["_weight_sq"]
+            table["n_eff"] = table["_weight"] ** 2 / table["_weight_sq"]
             p = table["estimate"].to_numpy()
-            v = table["_variance"].to_numpy()
+            v = np.where(empty, np.nan, table["_variance"].to_numpy())
             table["se"] = np.sqrt(v)
             srs = p * (1 - p) / (table["n"].to_numpy() - 1)
             table["deff"] = np.where(srs > 0, v / srs, np.nan)
@@ -633,12 +237,18 @@ class SurveyAnalysis:
             p, v, table["n"].to_numpy(), table["n_eff"].to_numpy(), table["df"].to_numpy(),
             self.method, self.confidence)
         table["ci_low"], table["ci_high"], table["method"] = low, high, used
-        table["flag"] = self.rule.flags(table["n"], p, table["se"], low, high, table["df"], design_n)
+        table["flag"], table["flag_reason"] = self.rule.flags_and_reasons(
+            table["n"], p, table["se"], low, high, table["df"], design_n)
         table.loc[~np.isfinite(p), "method"] = ""
-        return table[PREVALENCE_COLUMNS]
+        if self.totals:
+            t_crit = stats.t.ppf(1 - (1 - self.confidence) / 2, table["df"].to_numpy())
+            table["total_se"] = np.where(empty, np.nan, np.sqrt(np.maximum(table["_total_variance"], 0.0)))
+            table["total_ci_low"] = np.maximum(table["total"] - t_crit * table["total_se"], 0.0)
+            table["total_ci_high"] = table["total"] + t_crit * table["total_se"]
+        return table
 
     # ------------------------------------------------------------- comparisons
-    def _difference_rows(self, block: _Block, first: np.ndarray, second: np.ndarray, independent: bool,
+    def _difference_rows(self, block: TargetBlock, first: np.ndarray, second: np.ndarray, independent: bool,
                          df: np.ndarray) -> dict[str, np.ndarray]:
         """Differences target[first] - target[second] for all themes, shape (pairs * themes,)."""
         variance = np.diagonal(block.covariance, axis1=1, axis2=2)       # (k, T)
@@ -651,58 +261,64 @@ class SurveyAnalysis:
         a = block.estimate[first]
         b = block.estimate[second]
         difference = a - b
-        se = np.sqrt(var)
+        se = np.where(np.isfinite(difference), np.sqrt(var), np.nan)
         k = len(self.themes)
         dfs = np.repeat(df, k).reshape(-1, k)
+        # both shares at 0 or 1 in opposite directions: the design SE is 0, so test
+        # against the pooled share under "no difference" with the Kish effective n
+        pooled = (se == 0) & (difference != 0) & np.isfinite(difference)
+        se = np.where(pooled, _pooled_null_se(block, first, second), se)
+        structural = (se == 0) & (difference == 0)
         t_crit = stats.t.ppf(1 - (1 - self.confidence) / 2, dfs)
         with np.errstate(divide="ignore", invalid="ignore"):
-            p_value = 2 * stats.t.sf(np.abs(difference) / se, dfs)
-        p_value = np.where((se == 0) & (difference == 0), 1.0, np.where(se > 0, p_value, np.nan))
-        p_value = np.where(np.isfinite(difference), p_value, np.nan)
+            p_value = np.where(se > 0, 2 * stats.t.sf(np.abs(difference) / se, dfs), np.nan)
+        test = np.where(pooled, "pooled-null-t", np.where(structural, "none: both at 0 or both at 1", ""))
         return {"estimate_a": a.ravel(), "estimate_b": b.ravel(), "difference": difference.ravel(),
                 "se": se.ravel(), "ci_low": (difference - t_crit * se).ravel(),
-                "ci_high": (difference + t_crit * se).ravel(), "p_value": p_value.ravel()}
+                "ci_high": (difference + t_crit * se).ravel(), "p_value": p_value.ravel(),
+                "_test": test.ravel()}
 
-    def _comparison_frame(self, block: _Block, first: list[int], second: list[int], independent: bool,
+    def _comparison_frame(self, block: TargetBlock, first: list[int], second: list[int], independent: bool,
                           group_var: str, test: str) -> pd.DataFrame:
         first_idx, second_idx = np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)
         df = block.df[first_idx] + block.df[second_idx] if independent else block.df[first_idx]
         k = len(self.themes)
         columns = self._difference_rows(block, first_idx, second_idx, independent, df)
+        special = columns.pop("_test")
         name_b = [REST if block.target_kind[j] == "rest" else block.target_group[j] for j in second]
-        frame = pd.DataFrame({
+        kind = "waves" if independent else "groups"
+        return pd.DataFrame({
             "question": block.question,
             "theme": np.tile(self.themes, len(first)),
+            "theme_label": np.tile([self.labels[x] for x in self.themes], len(first)),
             "group_var": group_var,
             "group_a": np.repeat([block.target_group[i] for i in first], k),
             "group_b": np.repeat(name_b, k),
             "wave_a": np.repeat(np.asarray([block.target_wave[i] for i in first], dtype=object), k),
             "wave_b": np.repeat(np.asarray([block.target_wave[j] for j in second], dtype=object), k),
             **columns,
-            "test": test,
+            "test": np.where(special == "", test, special),
+            "family": self._family_name(block.question, block.group_var, kind),
         })
-        return frame
+
+    def _family_name(self, question: Any, group_var: str, kind: str) -> str:
+        if self.family == "table":
+            return "table"
+        return f"{question} | {group_var} | {kind}"
 
     def group_comparisons(self) -> pd.DataFrame:
         """Every pair of groups of a group variable, and each group against the rest.
 
         Per wave and pooled; differences use the covariance of the two domains of
-        the same design. q-values are Benjamini-Hochberg over this table.
+        the same design. A variable with exactly two groups gets only the pair
+        (each group against the rest would repeat it). q-values are
+        Benjamini-Hochberg within each multiple-testing family (``family`` column).
         """
         frames = []
         for block in self.blocks:
             if not block.groups:
                 continue
-            index = {(kind, g, w): i for i, (kind, g, w) in
-                     enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
-            first, second = [], []
-            for wave in [ALL, *block.waves]:
-                for a_pos, a in enumerate(block.groups):
-                    for b in block.groups[a_pos + 1:]:
-                        first.append(index[("group", a, wave)])
-                        second.append(index[("group", b, wave)])
-                    first.append(index[("group", a, wave)])
-                    second.append(index[("rest", a, wave)])
+            first, second = _group_pairs(block)
             frames.append(self._comparison_frame(block, first, second, False, block.group_var, "design-t"))
         return _finish_comparisons(frames)
 
@@ -716,138 +332,121 @@ class SurveyAnalysis:
         for block in self.blocks:
             if len(block.waves) < 2:
                 continue
-            index = {(kind, g, w): i for i, (kind, g, w) in
-                     enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
             kinds = [("group", g) for g in block.groups]
             if block.question not in seen_totals:
                 kinds.insert(0, ("total", ALL))
             seen_totals.add(block.question)
             for kind, group in kinds:
-                first, second = [], []
-                for later_pos, later in enumerate(block.waves):
-                    for earlier in block.waves[:later_pos]:
-                        first.append(index[(kind, group, later)])
-                        second.append(index[(kind, group, earlier)])
+                first, second = _wave_pairs(block, kind, group)
                 frames.append(self._comparison_frame(block, first, second, True,
                                                      ALL if kind == "total" else block.group_var,
                                                      "independent-t"))
         return _finish_comparisons(frames)
 
     def comparisons(self) -> pd.DataFrame:
-        """Group and wave comparisons in one table, q-values over the whole table."""
+        """Group and wave comparisons in one table, q-values within each family."""
         groups = self.group_comparisons()
         waves = self.wave_comparisons()
         table = pd.concat([frame for frame in (groups, waves) if len(frame)], ignore_index=True) \
             if len(groups) or len(waves) else groups
-        return add_q_values(table)[COMPARISON_COLUMNS]
+        return add_q_values(table, by="family")[COMPARISON_COLUMNS]
 
     # ------------------------------------------------------------- Rao-Scott
     def group_tests(self) -> pd.DataFrame:
         """Rao-Scott tests of "prevalence differs across the groups of this variable".
 
-        For each question x group variable x wave (and pooled) x theme, the theme
-        (yes/no) x group table of weighted shares: Pearson's X^2 on the table
-        rescaled to the unweighted n, the generalised design effects ``Delta``
-        from the design covariance of the cell shares (Rao & Scott 1981, 1984),
-        the second-order F = X^2 / tr(Delta) on (d0, d0 * df) with
-        d0 = tr(Delta)^2 / tr(Delta^2), and the first-order X^2 / mean(delta) on
-        chi^2 with (groups - 1) df. q-values are Benjamini-Hochberg over the table.
-        A theme nobody (or everybody) raised gives no test (NaN).
+        One row per question x group variable x wave (and pooled) x theme (see
+        :mod:`textkit.stats.rao_scott`). q-values are Benjamini-Hochberg within
+        each family (per question x group variable, or the whole table). A theme
+        nobody (or everybody) raised gives no test (NaN).
         """
         frames = []
         for block in self.blocks:
             if len(block.groups) < 2:
                 continue
-            for wave in [ALL, *block.waves]:
-                frame = self._rao_scott(block, wave)
+            for wave in block.scopes:
+                frame = rao_scott_table(block, wave, self.themes)
                 if frame is not None:
+                    frame["theme_label"] = [self.labels[x] for x in self.themes]
+                    frame["family"] = self._family_name(block.question, block.group_var, "tests")
                     frames.append(frame)
         if not frames:
             return pd.DataFrame(columns=GROUP_TEST_COLUMNS)
         table = pd.concat(frames, ignore_index=True)
-        table = add_q_values(table, "f_p_value", "f_q_value")
-        table = add_q_values(table, "chi2_p_value", "chi2_q_value")
+        table = add_q_values(table, "f_p_value", "f_q_value", by="family")
+        table = add_q_values(table, "chi2_p_value", "chi2_q_value", by="family")
         return table[GROUP_TEST_COLUMNS]
 
-    def _rao_scott(self, block: _Block, wave: Any) -> pd.DataFrame | None:
-        totals = block.totals
-        k = len(self.themes)
-        rows = [i for i, (kind, w) in enumerate(zip(block.target_kind, block.target_wave, strict=True))
-                if kind == "group" and w == wave and block.weight[i] > 0]
-        r = len(rows)
-        if r < 2:
-            return None
-        member = block.membership[rows].astype(float)             # (r, D)
-        scope = member.sum(axis=0)                                 # base domains in the table
-        s_total = float((member @ totals.weight).sum())
-        n_total = float((member @ totals.count).sum())
-        safe = np.nan_to_num(totals.estimate)                      # (D, k)
-        p_group = block.estimate[rows]                             # (r, k)
-        w_group = block.weight[rows]
-        yes = w_group[:, None] * p_group / s_total                 # pi_g1, (r, k)
-        no = w_group[:, None] * (1 - p_group) / s_total            # pi_g0
-        # linear maps of the cell shares on the base variables (z_d, s_d)
-        on_z = member * totals.weight[None, :] / s_total           # (r, D)
-        on_scores = np.concatenate([np.broadcast_to(on_z, (k, r, on_z.shape[1])),
-                                    -np.broadcast_to(on_z, (k, r, on_z.shape[1]))], axis=1)
-        on_w_yes = (member[None] * safe.T[:, None, :] - yes.T[:, :, None] * scope[None, None, :]) / s_total
-        in_scope = scope[None, None, :]
-        on_w_no = (member[None] * (1 - safe.T[:, None, :]) - no.T[:, :, None] * in_scope) / s_total
-        on_weights = np.concatenate([on_w_yes, on_w_no], axis=1)   # (k, 2r, D)
-        cov = _linear_covariance(totals, on_scores, on_weights)    # (k, 2r, 2r)
-        cells = np.concatenate([yes, no], axis=0).T                # (k, 2r) order: col * r + row
-        row_share = (cells[:, :r] + cells[:, r:])                  # (k, r)
-        col_share = np.stack([cells[:, :r].sum(axis=1), cells[:, r:].sum(axis=1)], axis=1)  # (k, 2)
-        expected = np.concatenate([row_share * col_share[:, :1], row_share * col_share[:, 1:]], axis=1)
-        valid = (col_share.min(axis=1) > 0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            pearson = n_total * np.where(expected > 0, (cells - expected) ** 2 / expected, 0.0).sum(axis=1)
-        contrast = _interaction_contrasts(r, 2)                   # (2r, r-1)
-        inv_cells = np.where(cells > 0, 1.0 / np.where(cells > 0, cells, 1.0), 0.0)   # (k, 2r)
-        weighted = contrast[None, :, :] * inv_cells[:, :, None]    # D^-1 C, (k, 2r, r-1)
-        denominator = np.swapaxes(contrast[None], 1, 2) @ weighted / n_total
-        numerator = np.swapaxes(weighted, 1, 2) @ cov @ weighted
-        denominator[~valid] = np.eye(r - 1)
-        numerator[~valid] = np.eye(r - 1)
-        delta = np.linalg.solve(denominator, numerator)
-        trace = np.trace(delta, axis1=1, axis2=2)
-        trace_sq = np.trace(delta @ delta, axis1=1, axis2=2)
-        df_design = float(block.df[rows[0]])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d0 = trace ** 2 / trace_sq
-            f_stat = pearson / trace
-            first_order = pearson / (trace / (r - 1))
-        f_p = stats.f.sf(f_stat, d0, d0 * df_design)
-        chi_p = stats.chi2.sf(first_order, r - 1)
-        nan = np.where(valid, 1.0, np.nan)
-        return pd.DataFrame({
-            "question": block.question, "theme": self.themes, "group_var": block.group_var, "wave": wave,
-            "n_groups": r, "n": int(n_total), "pearson_chi2": pearson * nan,
-            "mean_deff": trace / (r - 1) * nan, "f_statistic": f_stat * nan, "f_df_num": d0 * nan,
-            "f_df_den": d0 * df_design * nan, "f_p_value": f_p * nan, "chi2_first_order": first_order * nan,
-            "chi2_df": r - 1, "chi2_p_value": chi_p * nan,
-        })
 
+def _pooled_null_se(block: TargetBlock, first: np.ndarray, second: np.ndarray) -> np.ndarray:
+    """SE of a difference under "no difference": ``sqrt(pbar (1 - pbar) (1/n_a + 1/n_b))``.
 
-def _interaction_contrasts(rows: int, columns: int) -> np.ndarray:
-    """Row x column interaction contrasts orthogonal to the main effects, shape (rows*columns, (r-1)(c-1)).
-
-    Cells are ordered ``column * rows + row``.
+    ``pbar`` is the two domains' pooled weighted share and ``n`` their Kish
+    effective sizes; shape (pairs, n_themes).
     """
-    cell = np.arange(rows * columns)
-    row, col = cell % rows, cell // rows
-    row_dummies = (row[:, None] == np.arange(1, rows)[None, :]).astype(float)
-    col_dummies = (col[:, None] == np.arange(1, columns)[None, :]).astype(float)
-    main = np.hstack([np.ones((cell.size, 1)), row_dummies, col_dummies])
-    interactions = (row_dummies[:, :, None] * col_dummies[:, None, :]).reshape(cell.size, -1)
-    fitted = main @ np.linalg.lstsq(main, interactions, rcond=None)[0]
-    return interactions - fitted
+    w_a, w_b = block.weight[first][:, None], block.weight[second][:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        pooled = (w_a * block.estimate[first] + w_b * block.estimate[second]) / (w_a + w_b)
+        kish_a = block.weight[first] ** 2 / block.weight_sq[first]
+        kish_b = block.weight[second] ** 2 / block.weight_sq[second]
+        return np.sqrt(pooled * (1 - pooled) * (1 / kish_a + 1 / kish_b)[:, None])
+
+
+def target_totals(block: TargetBlock) -> tuple[np.ndarray, np.ndarray]:
+    """Estimated number raising each theme in each target (``sum w y``) and its variance.
+
+    The total of a union of base domains is linear in their scores and weight
+    totals (``sum w y = W_d z_d + p_d s_d`` per domain), so its design variance
+    comes from the same covariance as the shares. Shapes (n_targets, n_themes).
+    """
+    totals = block.totals
+    member = block.membership.astype(float)
+    safe = np.nan_to_num(totals.estimate)                                 # (D, k)
+    total = member @ (totals.weight[:, None] * safe)                       # (T, k), scaled weights
+    on_scores = member * totals.weight[None, :]
+    on_weights = member[None, :, :] * safe.T[:, None, :]
+    covariance = _linear_covariance(totals, on_scores, on_weights)         # (k, T, T)
+    variance = np.diagonal(covariance, axis1=1, axis2=2).T
+    return total * totals.scale, variance * totals.scale ** 2
+
+
+def _target_index(block: TargetBlock) -> dict[tuple[str, Any, Any], int]:
+    """(kind, group, wave) -> target position in ``block``."""
+    return {(kind, g, w): i for i, (kind, g, w) in
+            enumerate(zip(block.target_kind, block.target_group, block.target_wave, strict=True))}
+
+
+def _group_pairs(block: TargetBlock) -> tuple[list[int], list[int]]:
+    """Targets compared by group comparisons: each pair of groups, then each group vs its rest, per wave."""
+    index = _target_index(block)
+    first, second = [], []
+    against_rest = len(block.groups) != 2
+    for wave in block.scopes:
+        for a_pos, a in enumerate(block.groups):
+            for b in block.groups[a_pos + 1:]:
+                first.append(index[("group", a, wave)])
+                second.append(index[("group", b, wave)])
+            if against_rest:
+                first.append(index[("group", a, wave)])
+                second.append(index[("rest", a, wave)])
+    return first, second
+
+
+def _wave_pairs(block: TargetBlock, kind: str, group: str) -> tuple[list[int], list[int]]:
+    """Targets compared by wave comparisons of one group (or the total): later, earlier."""
+    index = _target_index(block)
+    first, second = [], []
+    for later_pos, later in enumerate(block.waves):
+        for earlier in block.waves[:later_pos]:
+            first.append(index[(kind, group, later)])
+            second.append(index[(kind, group, earlier)])
+    return first, second
 
 
 def _finish_comparisons(frames: list[pd.DataFrame]) -> pd.DataFrame:
     if not frames:
         return pd.DataFrame(columns=COMPARISON_COLUMNS)
-    return add_q_values(pd.concat(frames, ignore_index=True))[COMPARISON_COLUMNS]
+    return add_q_values(pd.concat(frames, ignore_index=True), by="family")[COMPARISON_COLUMNS]
 
 
 # ---------------------------------------------------------------------------
@@ -875,7 +474,65 @@ def _theme_matrix(coded: pd.DataFrame, themes: Sequence[str]) -> sparse.csr_matr
     return matrix.astype(np.float64)
 
 
-def _group_codes(coded: pd.DataFrame, column: str) -> tuple[np.ndarray, list[str]]:
+def _themes_and_nets(coded: pd.DataFrame, themes: list[str], nets: dict[str, Sequence[str]]
+                     ) -> sparse.csr_matrix:
+    """0/1 matrix of ``themes`` then one column per net (the union of its member themes)."""
+    for name, members in nets.items():
+        if name in themes:
+            raise AnalysisError(f"net '{name}' has the name of a theme; give it a name of its own")
+        if not members:
+            raise AnalysisError(f"net '{name}' has no member themes")
+    columns = list(dict.fromkeys([*themes, *(m for members in nets.values() for m in members)]))
+    matrix = _theme_matrix(coded, columns)
+    position = {c: i for i, c in enumerate(columns)}
+    net_columns = [(matrix[:, [position[m] for m in members]].sum(axis=1) > 0).astype(np.float64)
+                   for members in nets.values()]
+    parts = [matrix[:, [position[t] for t in themes]], *(sparse.csr_matrix(c) for c in net_columns)]
+    out = sparse.hstack(parts, format="csr")
+    out.eliminate_zeros()
+    return out
+
+
+def is_missing_value(values: pd.Series) -> np.ndarray:
+    """Missing group or wave values: empty, or labelled ``(missing)`` by the survey reader."""
+    from ..io.readers import MISSING_LABEL
+
+    return (values.isna() | (values.astype(object) == MISSING_LABEL)).to_numpy()
+
+
+def _group_codes(coded: pd.DataFrame, variable: str) -> tuple[np.ndarray, list[str]]:
+    """Group code of every row (-1: no value) and the sorted group labels.
+
+    ``variable`` is a column, or columns joined by ``*`` for crossed groups (a row
+    without a value in any part has no crossed value).
+    """
+    parts = variable.split(CROSS) if variable not in coded.columns and CROSS in variable else [variable]
+    for part in parts:
+        if part not in coded.columns:
+            raise AnalysisError(f"the data has no column '{part}' (asked for as a group); columns "
+                                f"are: {', '.join(map(str, coded.columns[:20]))}", column=part)
+    if len(parts) == 1:
+        return _column_codes(coded, variable)
+    coded_parts = [_column_codes(coded, part) for part in parts]
+    missing = np.any([codes < 0 for codes, _ in coded_parts], axis=0)
+    combined = np.zeros(len(coded), dtype=np.int64)
+    for codes, labels in coded_parts:
+        combined = combined * (len(labels) + 1) + codes
+    combined = np.where(missing, -1, combined)
+    present, codes = np.unique(combined[~missing], return_inverse=True)
+    out = np.full(len(coded), -1, dtype=np.int64)
+    out[~missing] = codes
+    labels = []
+    for key in present:
+        names = []
+        for _, part_labels in reversed(coded_parts):
+            names.append(part_labels[key % (len(part_labels) + 1)])
+            key //= len(part_labels) + 1
+        labels.append(CROSS_LABEL.join(reversed(names)))
+    return out, labels
+
+
+def _column_codes(coded: pd.DataFrame, column: str) -> tuple[np.ndarray, list[str]]:
     values = coded[column]
     if isinstance(values.dtype, pd.CategoricalDtype):
         used = set(values.dropna().unique())
@@ -883,17 +540,49 @@ def _group_codes(coded: pd.DataFrame, column: str) -> tuple[np.ndarray, list[str
         if unused:
             raise AnalysisError(f"group '{unused[0]}' has no responses; drop the empty category "
                                 "(e.g. frame[col].cat.remove_unused_categories())", column=column)
+    values = values.where(~is_missing_value(values))
     codes, uniques = pd.factorize(values, sort=True)
     if len(uniques) == 0:
         raise AnalysisError("the group column has no values (every response is missing)", column=column)
     return codes.astype(np.int64), [str(v) for v in uniques.tolist()]
 
 
+def drop_missing_wave(coded: pd.DataFrame, wave: str | None, id_column: str = "response_id",
+                      *, drop: bool = False) -> tuple[pd.DataFrame, int]:
+    """Refuse (default) or leave out the rows without a wave value.
+
+    Returns the rows kept and the number of responses left out. Without ``drop``
+    a missing wave raises :class:`AnalysisError` naming the first rows: a blank
+    wave would otherwise become a wave of its own.
+    """
+    if wave is None or wave not in coded.columns:
+        return coded, 0
+    missing = is_missing_value(coded[wave])
+    if not missing.any():
+        return coded, 0
+    has_id = id_column in coded.columns
+    ids = coded[id_column][missing] if has_id else pd.Series(np.flatnonzero(missing) + 1)
+    n_responses = int(ids.nunique())
+    if drop:
+        return coded[~missing].reset_index(drop=True), n_responses
+    rows = np.flatnonzero(missing) + 1
+    named = ", ".join(str(r) for r in rows[:5]) + (", ..." if rows.size > 5 else "")
+    who = f" (responses {', '.join(map(str, pd.unique(ids)[:3]))}{', ...' if n_responses > 3 else ''})" \
+        if has_id else ""
+    raise AnalysisError(f"{n_responses} response(s) have no wave value, in rows {named}{who}; give them a "
+                        "wave, or leave them out with --drop-missing-wave (missing_wave='drop')",
+                        column=wave, row=int(rows[0]))
+
+
 def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | None = None,
             groups: Sequence[str] = (), wave: str | None = None, *, question_column: str = "question",
             answered_column: str | None = "answered", id_column: str = "response_id",
             method: str = DEFAULT_METHOD, confidence: float = 0.95,
-            rule: ReliabilityRule = DEFAULT_RULE) -> SurveyAnalysis:
+            rule: ReliabilityRule = DEFAULT_RULE, questions: Sequence[Any] | None = None,
+            waves: Sequence[Any] | None = None, nets: dict[str, Sequence[str]] | None = None,
+            base: str = "answered", totals: bool = False, labels: dict[str, str] | None = None,
+            question_text: dict[Any, str] | None = None, family: str = "question-variable",
+            missing_wave: str = "refuse") -> SurveyAnalysis:
     """Compute every prevalence and its covariance once; tables come from the result.
 
     Parameters
@@ -903,19 +592,42 @@ def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | N
         ``answered_column`` (0/1), the group columns and one 0/1 column per theme.
         Without a question column the table is one question, labelled ``"(all)"``.
     themes : sequence of str
-        Theme columns, in output order.
+        Theme columns to report, in output order.
     design : SurveyDesign, optional
         Built from the same survey (with ``id=``). Default: every response is its
         own PSU with weight 1 (and the wave, if given).
     groups : sequence of str
-        Group variable columns.
+        Group variables: columns, or columns joined by ``*`` for crossed groups
+        (``"market*age_band"``: one group per combination that occurs).
     wave : str, optional
         Wave column; must be the design's wave column (default: the design's).
     question_column, answered_column, id_column : str
         Column names; ``answered_column=None`` counts every row as answered.
     method : {"logit", "korn-graubard", "wilson"}, default "korn-graubard"
     confidence : float, default 0.95
-    rule : ReliabilityRule, default NCHS_LIKE
+    rule : ReliabilityRule, default BASE_WIDTH_RULE
+    questions : sequence, optional
+        Only these questions (default: all, in table order).
+    waves : sequence, optional
+        Only these waves (compared as text); the pooled ``"(all)"`` rows pool the
+        chosen waves and are left out when only one is chosen.
+    nets : dict of str to list of str, optional
+        Named unions of themes ("any facilities problem"): a respondent raises the
+        net when they raise any member theme. Estimated like themes, after them.
+    base : {"answered", "all"}, default "answered"
+        The base of every share: respondents who answered the question, or all
+        respondents (a share of all visitors).
+    totals : bool, default False
+        Add the estimated number raising each theme (``sum w y``) with its SE and
+        t interval (meaningful when the weights sum to a population).
+    labels, question_text : dict, optional
+        Theme (and net) labels and question wording shown beside the ids.
+    family : {"question-variable", "table"}, default "question-variable"
+        Benjamini-Hochberg family: each question x group variable (group
+        comparisons, wave comparisons and Rao-Scott tests apart), or the whole table.
+    missing_wave : {"refuse", "drop"}, default "refuse"
+        Rows without a wave value: refuse, or leave them out (counted in
+        ``SurveyAnalysis.dropped_responses``).
 
     Returns
     -------
@@ -924,25 +636,102 @@ def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | N
     Raises
     ------
     AnalysisError
-        Unknown columns, a group category without responses, rows whose response
-        is not in the design, theme values other than 0/1.
+        Unknown columns, questions, waves or options, a group category without
+        responses, rows whose response is not in the design, theme values other
+        than 0/1, a missing wave value (unless dropped).
     """
     method = _method_name(method)
-    if not 0 < confidence < 1:
-        raise AnalysisError(f"confidence must be between 0 and 1, not {confidence}")
+    _check_options(confidence, base, family, missing_wave)
     themes = [str(t) for t in themes]
-    if not themes:
+    nets = {str(k): [str(m) for m in v] for k, v in (nets or {}).items()}
+    if not themes and not nets:
         raise AnalysisError("no theme columns to estimate")
     groups = list(groups)
+    _check_columns(coded, [g for g in groups if g in coded.columns or CROSS not in g], wave, answered_column)
+    coded, dropped = drop_missing_wave(coded, wave or (design.columns.get("wave") if design else None),
+                                       id_column, drop=missing_wave == "drop")
+    if design is None:
+        has_id = id_column in coded.columns
+        design = SurveyDesign.from_frame(coded, wave=wave, id=id_column if has_id else None)
+    unit = _design_units(coded, design, wave, id_column)
+    Y = _themes_and_nets(coded, themes, nets)
+    if answered_column is None or base == "all":
+        answered = np.ones(len(coded), dtype=bool)
+    else:
+        answered = pd.to_numeric(coded[answered_column], errors="coerce").fillna(0).to_numpy() > 0
+    question_codes, question_list = _question_codes(coded, question_column, questions)
+    wave_choice = _wave_choice(design, waves)
+    group_codes = {variable: _group_codes(coded, variable) for variable in groups}
+    blocks: list[TargetBlock] = []
+    for q_code, question in enumerate(question_list):
+        in_question = (question_codes == q_code) & answered
+        for variable in groups if groups else [ALL]:
+            codes = group_codes.get(variable, (np.zeros(len(coded), dtype=np.int64), []))
+            blocks.append(_build_block(Y, unit, design, question, in_question, variable, *codes,
+                                       wave_choice=wave_choice))
+    return SurveyAnalysis(blocks, [*themes, *nets], design, method, confidence, rule, labels=labels,
+                          question_text=question_text, family=family, totals=totals, base=base,
+                          dropped_responses=dropped)
+
+
+def _check_options(confidence: float, base: str, family: str, missing_wave: str) -> None:
+    if not 0 < confidence < 1:
+        raise AnalysisError(f"confidence must be between 0 and 1, not {confidence}")
+    for name, value, allowed in (("base", base, BASES), ("family", family, FAMILIES),
+                                 ("missing_wave", missing_wave, ("refuse", "drop"))):
+        if value not in allowed:
+            raise AnalysisError(f"unknown {name} '{value}'; choose one of {', '.join(allowed)}")
+
+
+def _question_codes(coded: pd.DataFrame, question_column: str, questions: Sequence[Any] | None
+                    ) -> tuple[np.ndarray, list[Any]]:
+    """Question code of every row (-1: not asked for) and the questions to report."""
+    if question_column not in coded.columns:
+        if questions:
+            raise AnalysisError("the table has no question column, so questions cannot be chosen",
+                                column=question_column)
+        return np.zeros(len(coded), dtype=np.int64), [ALL]
+    codes, found = pd.factorize(coded[question_column], sort=False)
+    found = list(found)
+    if not questions:
+        return codes, found
+    by_text = {str(q): i for i, q in enumerate(found)}
+    unknown = [q for q in questions if str(q) not in by_text]
+    if unknown:
+        raise AnalysisError(f"unknown question '{unknown[0]}'; the questions are: "
+                            f"{', '.join(map(str, found))}", column=question_column)
+    chosen = list(dict.fromkeys(by_text[str(q)] for q in questions))
+    remap = np.full(len(found), -1, dtype=np.int64)
+    remap[chosen] = np.arange(len(chosen))
+    return np.where(codes >= 0, remap[codes], -1), [found[i] for i in chosen]
+
+
+def _wave_choice(design: SurveyDesign, waves: Sequence[Any] | None) -> list[int]:
+    """Codes of the waves to report (all when ``waves`` is empty)."""
+    if not waves:
+        return list(range(len(design.wave_labels)))
+    if not design.wave_labels:
+        raise AnalysisError("waves were chosen but the data has no wave column")
+    by_text = {str(w): i for i, w in enumerate(design.wave_labels)}
+    unknown = [w for w in waves if str(w) not in by_text]
+    if unknown:
+        raise AnalysisError(f"unknown wave '{unknown[0]}'; the waves are: "
+                            f"{', '.join(map(str, design.wave_labels))}", column=design.columns.get("wave"))
+    return sorted(dict.fromkeys(by_text[str(w)] for w in waves))
+
+
+def _check_columns(coded: pd.DataFrame, groups: list[str], wave: str | None,
+                   answered_column: str | None) -> None:
     for column in [*groups, *([wave] if wave else [])]:
         if column not in coded.columns:
             raise AnalysisError(f"the data has no column '{column}' (asked for as a group or wave); columns "
                                 f"are: {', '.join(map(str, coded.columns[:20]))}", column=column)
     if answered_column is not None and answered_column not in coded.columns:
         raise AnalysisError("the answered column is not in the coded table", column=answered_column)
-    if design is None:
-        has_id = id_column in coded.columns
-        design = SurveyDesign.from_frame(coded, wave=wave, id=id_column if has_id else None)
+
+
+def _design_units(coded: pd.DataFrame, design: SurveyDesign, wave: str | None, id_column: str) -> np.ndarray:
+    """Design unit (response) of every row of ``coded``, shape (n_rows,)."""
     design_wave = design.columns.get("wave")
     if wave is not None and wave != design_wave:
         raise AnalysisError(f"the design was built with wave column '{design_wave}', not '{wave}'; build it "
@@ -953,62 +742,51 @@ def analyse(coded: pd.DataFrame, themes: Sequence[str], design: SurveyDesign | N
             row = int(np.flatnonzero(unit < 0)[0])
             raise AnalysisError(f"response '{coded[id_column].iloc[row]}' is not in the survey design",
                                 row=row + 1, column=id_column)
-    elif len(coded) == design.n_units:
-        unit = np.arange(len(coded))
-    else:
-        raise AnalysisError(f"the coded table has {len(coded)} rows but the design {design.n_units} "
-                            f"responses; give the '{id_column}' column and build the design with id=")
-    Y = _theme_matrix(coded, themes)
-    if answered_column is None:
-        answered = np.ones(len(coded), dtype=bool)
-    else:
-        answered = pd.to_numeric(coded[answered_column], errors="coerce").fillna(0).to_numpy() > 0
-    if question_column in coded.columns:
-        question_codes, questions = pd.factorize(coded[question_column], sort=False)
-        questions = list(questions)
-    else:
-        question_codes, questions = np.zeros(len(coded), dtype=np.int64), [ALL]
-    wave_codes = design.wave[unit] if design.wave is not None else np.zeros(len(coded), dtype=np.int64)
-    wave_labels = list(design.wave_labels)
+        return unit
+    if len(coded) == design.n_units:
+        return np.arange(len(coded))
+    raise AnalysisError(f"the coded table has {len(coded)} rows but the design {design.n_units} "
+                        f"responses; give the '{id_column}' column and build the design with id=")
+
+
+def _build_block(Y: sparse.csr_matrix, unit: np.ndarray, design: SurveyDesign, question: Any,
+                 in_question: np.ndarray, variable: str, codes: np.ndarray, labels: list[str],
+                 *, wave_choice: list[int]) -> TargetBlock:
+    """Base domains (group x wave within the question), their totals and every target's estimate."""
     n_waves = design.n_waves
-    group_codes = {column: _group_codes(coded, column) for column in groups}
-    wave_df = design.wave_df().astype(float)
-
-    blocks: list[_Block] = []
-    variables = groups if groups else [ALL]
-    for q_code, question in enumerate(questions):
-        in_question = (question_codes == q_code) & answered
-        for variable in variables:
-            if variable == ALL:
-                codes, labels = np.zeros(len(coded), dtype=np.int64), []
-                base_groups = 1  # every row sits in the pseudo group "no group value"
-            else:
-                codes, labels = group_codes[variable]
-                codes = np.where(codes < 0, len(labels), codes)
-                base_groups = len(labels) + int((codes[in_question] == len(labels)).any())
-                if base_groups == len(labels):
-                    codes = np.where(codes == len(labels), -1, codes)
-            n_domains = base_groups * n_waves
-            domain = np.where(in_question & (codes >= 0), codes * n_waves + wave_codes, -1)
-            totals = domain_totals(Y, unit, domain, n_domains, design)
-            block = _Block(question=question, group_var=variable, groups=labels, n_base_groups=base_groups,
-                           waves=wave_labels, totals=totals)
-            _add_targets(block, n_waves, design.df, wave_df)
-            (block.estimate, block.covariance, block.weight, block.count,
-             block.weight_sq) = union_estimates(totals, block.membership)
-            blocks.append(block)
-    return SurveyAnalysis(blocks, themes, design, method, confidence, rule)
+    if variable == ALL:
+        base_groups = 1  # every row sits in the pseudo group "no group value"
+    else:
+        codes = np.where(codes < 0, len(labels), codes)
+        base_groups = len(labels) + int((codes[in_question] == len(labels)).any())
+        if base_groups == len(labels):
+            codes = np.where(codes == len(labels), -1, codes)
+    wave_codes = design.wave[unit] if design.wave is not None else np.zeros(len(unit), dtype=np.int64)
+    domain = np.where(in_question & (codes >= 0), codes * n_waves + wave_codes, -1)
+    totals = domain_totals(Y, unit, domain, base_groups * n_waves, design)
+    block = TargetBlock(question=question, group_var=variable, groups=labels, n_base_groups=base_groups,
+                        waves=[design.wave_labels[w] for w in wave_choice], totals=totals)
+    _add_targets(block, n_waves, design.df, design.wave_df().astype(float), wave_choice)
+    (block.estimate, block.covariance, block.weight, block.count,
+     block.weight_sq) = union_estimates(totals, block.membership)
+    block.count_yes = block.membership @ totals.count_yes
+    return block
 
 
-def _add_targets(block: _Block, n_waves: int, design_df: int, wave_df: np.ndarray) -> None:
-    """Targets of a block: every group (and the total) per wave and pooled, and each group's rest."""
+def _add_targets(block: TargetBlock, n_waves: int, design_df: int, wave_df: np.ndarray,
+                 wave_choice: list[int]) -> None:
+    """Targets of a block: every group (and the total) per chosen wave and pooled, and each group's rest."""
     g_named = len(block.groups)
     n_domains = block.n_base_groups * n_waves
     base_group = np.arange(n_domains) // n_waves
     base_wave = np.arange(n_domains) % n_waves
-    scopes: list[tuple[Any, np.ndarray, float]] = [(ALL, np.ones(n_domains, dtype=bool), float(design_df))]
-    if block.waves:
-        scopes += [(label, base_wave == w, float(wave_df[w])) for w, label in enumerate(block.waves)]
+    scopes: list[tuple[Any, np.ndarray, float]] = []
+    if len(wave_choice) != 1:
+        chosen = np.isin(base_wave, wave_choice) if wave_choice else np.ones(n_domains, dtype=bool)
+        pooled_df = float(wave_df[wave_choice].sum()) if len(wave_choice) < n_waves and wave_choice \
+            else float(design_df)
+        scopes.append((ALL, chosen, pooled_df))
+    scopes += [(block.waves[i], base_wave == w, float(wave_df[w])) for i, w in enumerate(wave_choice)]
     rows, kinds, groups, waves, dfs = [], [], [], [], []
     for label, in_scope, df in scopes:
         rows.append(in_scope)
@@ -1027,6 +805,7 @@ def _add_targets(block: _Block, n_waves: int, design_df: int, wave_df: np.ndarra
     block.membership = np.asarray(rows, dtype=float)
     block.target_kind, block.target_group, block.target_wave = kinds, groups, waves
     block.df = np.asarray(dfs)
+    block.scopes = [label for label, _, _ in scopes]
 
 
 # ---------------------------------------------------------------------------

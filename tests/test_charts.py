@@ -1,0 +1,188 @@
+"""Charts read back: points, whiskers, bars and labels come from the data; files are deterministic."""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from textkit.cli.main import main
+from textkit.errors import AnalysisError
+from textkit.io.output import render_figure
+from textkit.present import charts
+
+THEMES = ["queues", "cost_value", "toilets", "parking"]
+GROUPS = ["Caldoria", "Tessary", "Vossland"]
+
+
+def _prevalence() -> pd.DataFrame:
+    rng = np.random.default_rng(4)
+    rows = []
+    overall = {"queues": 0.30, "cost_value": 0.20, "toilets": 0.10, "parking": 0.05}
+    for theme in THEMES:
+        rows.append(("low_point", theme, "(all)", "(all)", "(all)", 900, overall[theme], "ok"))
+        for group in GROUPS:
+            rows.append(("low_point", theme, "market", group, "(all)", 300, overall[theme] + rng.uniform(-.03, .03),
+                         "ok"))
+    frame = pd.DataFrame(rows, columns=["question", "theme", "group_var", "group", "wave", "n", "estimate", "flag"])
+    frame["ci_low"] = frame["estimate"] - 0.03
+    frame["ci_high"] = frame["estimate"] + 0.03
+    frame.loc[(frame["theme"] == "parking") & (frame["group"] == "Tessary"), "flag"] = "suppress"
+    frame.loc[(frame["theme"] == "toilets") & (frame["group"] == "Vossland"), "flag"] = "caution"
+    return frame
+
+
+def _collections(figure, prefix):
+    axes = figure.axes[0]
+    return [c for c in axes.collections if (c.get_gid() or "").startswith(prefix)]
+
+
+def test_prevalence_chart_draws_one_point_and_whisker_per_shown_row():
+    table = _prevalence()
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    shown = table[(table["group_var"] == "market") & (table["flag"] != "suppress")]
+    points = sum(len(c.get_offsets()) for c in _collections(figure, "points:") + _collections(figure, "hollow:"))
+    whiskers = sum(len(c.get_segments()) for c in _collections(figure, "whiskers:"))
+    assert points == whiskers == len(shown) == 11
+    hollow = sum(len(c.get_offsets()) for c in _collections(figure, "hollow:"))
+    assert hollow == 1  # the caution cell
+    # the suppressed cell: a marker, and no whisker at its height
+    suppressed_y = _collections(figure, "suppressed")[0].get_offsets()[:, 1]
+    assert len(suppressed_y) == 1
+    whisker_y = np.concatenate([[seg[0][1] for seg in c.get_segments()] for c in _collections(figure, "whiskers:")])
+    assert not np.isclose(whisker_y, suppressed_y[0]).any()
+    # ticks from the data, highest overall prevalence at the top
+    ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    assert ticks == ["parking", "toilets", "cost_value", "queues"]
+    legend = [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
+    assert [entry.split(" (n=")[0] for entry in legend[:3]] == GROUPS
+    assert "(n=300)" in legend[0]
+
+
+def test_prevalence_chart_uses_labels_when_the_table_has_them():
+    table = _prevalence().assign(label=lambda f: f["theme"].str.replace("_", " ").str.title())
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues"
+
+
+def test_a_filter_value_not_in_the_data_lists_the_valid_ones():
+    with pytest.raises(AnalysisError, match="group_var 'region' is not in prevalence.csv; valid values: .*market"):
+        charts.prevalence_chart(_prevalence(), question="low_point", group_var="region")
+
+
+def test_same_figure_gives_identical_svg_and_png_at_200_dpi():
+    from PIL import Image
+
+    first = render_figure(charts.prevalence_chart(_prevalence(), question="low_point", group_var="market"), "svg")
+    second = render_figure(charts.prevalence_chart(_prevalence(), question="low_point", group_var="market"), "svg")
+    assert first == second and len(first) > 1000
+    figure = charts.prevalence_chart(_prevalence(), question="low_point")
+    png = render_figure(figure, "png", dpi=200)
+    image = Image.open(io.BytesIO(png))
+    assert image.size == (round(figure.get_figwidth() * 200), round(figure.get_figheight() * 200))
+    with pytest.raises(ValueError):
+        render_figure(figure, "png", dpi=100)
+
+
+def _comparisons() -> pd.DataFrame:
+    return pd.DataFrame({
+        "question": "low_point", "theme": ["queues", "cost_value", "toilets", "parking"], "group_var": "(all)",
+        "group_a": "(all)", "group_b": "(all)", "wave_a": "2026", "wave_b": "2025",
+        "difference": [0.05, -0.02, 0.01, -0.06], "ci_low": [0.02, -0.05, -0.01, -0.09],
+        "ci_high": [0.08, 0.01, 0.03, -0.03], "q_value": [0.001, 0.3, 0.5, 0.01]})
+
+
+def test_differences_sorted_with_significant_rows_distinct_and_a_zero_line():
+    rows = charts.difference_rows(_comparisons(), question="low_point", kind="waves")
+    figure = charts.differences_chart(rows)
+    axes = figure.axes[0]
+    assert [t.get_text() for t in axes.get_yticklabels()] == ["parking", "cost_value", "toilets", "queues"]
+    significant = _collections(figure, "points:significant")[0].get_offsets()
+    assert sorted(significant[:, 0]) == [-0.06, 0.05]
+    assert len(_collections(figure, "points:not-significant")[0].get_offsets()) == 2
+    assert any(line.get_gid() == "zero-line" for line in axes.lines)
+
+
+def _keyness() -> pd.DataFrame:
+    terms = [f"term {i}" for i in range(12)]
+    z = np.array([5, 4, 3.5, 3, 2.5, 2.1, -2.2, -2.6, -3, -3.3, -4, -4.5])
+    return pd.DataFrame({"question": "low_point", "group_var": "market", "group": "Caldoria",
+                         "reference": "(rest)", "term": terms, "z": z, "g2": z ** 2})
+
+
+def test_keyness_bars_one_per_term_per_side_with_the_measure_named():
+    figure = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", top=4)
+    axes = figure.axes[0]
+    bars = [p for p in axes.patches]
+    assert len(bars) == 8
+    assert sum(p.get_width() > 0 for p in bars) == 4
+    assert set(t.get_text() for t in axes.get_yticklabels()) == {f"term {i}" for i in (0, 1, 2, 3, 8, 9, 10, 11)}
+    assert "z-score" in axes.get_xlabel()
+    g2 = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", measure="g2")
+    assert sum(p.get_width() < 0 for p in g2.axes[0].patches) == 6  # G2 takes the side of z
+
+
+def test_cooccurrence_matrix_matches_a_crosstab():
+    rng = np.random.default_rng(1)
+    matrix = (rng.random((200, 4)) < 0.3).astype(int)
+    share = charts.cooccurrence_matrix(matrix)
+    # independent check with pandas: P(B | A) from a crosstab of each pair (common practice)
+    for a in range(4):
+        for b in range(4):
+            table = pd.crosstab(matrix[:, a], matrix[:, b])
+            assert share[a, b] == pytest.approx(table.loc[1, 1] / table.loc[1].sum())
+
+
+def test_topic_charts_from_the_topic_tables():
+    topics = pd.DataFrame([("low_point", "uncoded", t, f"label {t}", r, f"w{t}{r}", 1.0 / r)
+                           for t in range(1, 4) for r in range(1, 7)],
+                          columns=["question", "scope", "topic", "label", "rank", "term", "weight"])
+    figure = charts.topic_terms_chart(topics, question="low_point", top=5)
+    panels = [a for a in figure.axes if a.get_visible()]
+    assert len(panels) == 3 and all(len(a.patches) == 5 for a in panels)
+    assert [t.get_text() for t in panels[0].get_yticklabels()][-1] == "w11"
+    k_table = pd.DataFrame({"question": "low_point", "scope": "uncoded", "k": [3, 4, 5, 6],
+                            "stability": [0.6, 0.8, 0.7, 0.5], "coherence": [0.1, 0.2, 0.15, 0.1],
+                            "chosen": [False, True, False, False]})
+    figure = charts.k_selection_chart(k_table, question="low_point")
+    chosen = [line for a in figure.axes for line in a.lines if line.get_gid() == "chosen-k"]
+    assert chosen and all(line.get_xdata()[0] == 4 for line in chosen)
+
+
+def _results_folder(tmp_path):
+    folder = tmp_path / "stats"
+    folder.mkdir()
+    _prevalence().to_csv(folder / "prevalence.csv", index=False)
+    _comparisons().to_csv(folder / "comparisons.csv", index=False)
+    (folder / "manifest.json").write_text(json.dumps({"roles": {"weight": "weight"}, "settings": {
+        "method": "korn-graubard", "confidence": 0.95, "rule": {"name": "nchs-like"}}}))
+    return folder
+
+
+def test_charts_command_writes_png_and_svg_named_for_what_they_show(tmp_path, capsys):
+    folder = _results_folder(tmp_path)
+    assert main(["charts", str(folder), "--out", str(tmp_path / "out"), "--jobs", "1", "--quiet"]) == 0
+    written = sorted(p.name for p in (tmp_path / "out").iterdir())
+    assert "prevalence__low_point__by-market__wave-all.png" in written
+    assert "differences__low_point__waves.svg" in written
+    assert all((tmp_path / "out" / name).stat().st_size > 0 for name in written)
+
+
+def test_charts_command_bad_input_is_one_line(tmp_path, capsys):
+    folder = _results_folder(tmp_path)
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    assert main(["charts", str(empty), "--out", str(tmp_path / "o1")]) == 2
+    message = capsys.readouterr().err.strip()
+    assert "\n" not in message and "prevalence.csv" in message and "textkit prevalence" in message
+    assert main(["charts", str(folder), "--out", str(tmp_path / "o2"), "--group-var", "region"]) == 2
+    message = capsys.readouterr().err.strip()
+    assert "\n" not in message and "valid values" in message and "market" in message
+    assert not (tmp_path / "o2").exists()
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    assert main(["charts", str(folder), "--out", str(blocker / "sub"), "--jobs", "1"]) == 2
+    assert "\n" not in capsys.readouterr().err.strip()

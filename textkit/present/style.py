@@ -1,0 +1,146 @@
+"""The look of textkit charts: palette, fonts, titles and captions.
+
+One colour-blind-safe palette for categories (Okabe & Ito 2008, "Color
+Universal Design"), viridis for sequential scales (perceptually uniform, legible
+in greyscale), DejaVu Sans (ships inside matplotlib, covers Greek, Cyrillic and
+accented Latin) for every text. The layout is our own: a left-aligned title in
+bold, a subtitle holding the question's wording in grey beneath it, a light
+horizontal grid only, no frame on the top and right, and a caption at the foot
+that names the source, the base, the weighting and the interval method.
+
+matplotlib is imported inside the functions, never at module import.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from typing import Any
+
+#: Okabe-Ito colours in the order categories receive them (black last: it is
+#: kept for text and reference lines).
+CATEGORY_COLOURS = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000")
+#: Names of the same colours, for legends and docs.
+CATEGORY_NAMES = ("blue", "orange", "bluish green", "reddish purple", "sky blue", "vermillion", "yellow", "black")
+#: The sequential colour map.
+SEQUENTIAL_MAP = "viridis"
+#: Neutral grey: words or cells that lean to no side.
+NEUTRAL_COLOUR = "#8C8C8C"
+#: Text colours.
+INK = "#1A1A1A"
+MUTED_INK = "#5A5A5A"
+#: Font family used for every text; it ships with matplotlib.
+FONT_FAMILY = "DejaVu Sans"
+
+_RC = {
+    "font.family": "sans-serif",
+    "font.sans-serif": [FONT_FAMILY],
+    "font.size": 9,
+    "axes.edgecolor": MUTED_INK,
+    "axes.labelcolor": INK,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": False,
+    "axes.titlesize": 10,
+    "grid.color": "#DDDDDD",
+    "grid.linewidth": 0.6,
+    "xtick.color": MUTED_INK,
+    "ytick.color": MUTED_INK,
+    "legend.frameon": False,
+    "svg.hashsalt": "textkit",
+    "svg.fonttype": "path",
+    "figure.facecolor": "white",
+    "savefig.facecolor": "white",
+}
+
+
+def category_colour(index: int) -> str:
+    """The ``index``-th category colour (cycling after eight)."""
+    return CATEGORY_COLOURS[index % len(CATEGORY_COLOURS)]
+
+
+def default_font_path() -> str:
+    """Path of the DejaVu Sans TrueType file that ships with matplotlib."""
+    from matplotlib import font_manager
+
+    return font_manager.findfont(font_manager.FontProperties(family=FONT_FAMILY), fallback_to_default=True)
+
+
+@contextmanager
+def chart_style() -> Iterator[None]:
+    """matplotlib settings of textkit charts, active inside the ``with`` block only."""
+    import matplotlib
+
+    with matplotlib.rc_context(_RC):
+        yield
+
+
+@dataclass(frozen=True)
+class ChartText:
+    """The words around a chart.
+
+    Attributes
+    ----------
+    title : str
+        What the chart shows, in one line.
+    subtitle : str
+        The question's wording (or its name when no wording is known).
+    caption : str
+        Source, base, weighting and interval method.
+    """
+
+    title: str
+    subtitle: str = ""
+    caption: str = ""
+
+
+def new_figure(n_rows: int, *, width: float = 7.5, row_height: float = 0.28, min_height: float = 3.2,
+               extra: float = 1.6) -> tuple[Any, Any]:
+    """A figure with one axes, tall enough for ``n_rows`` category rows (inches)."""
+    from matplotlib.figure import Figure
+
+    height = max(min_height, n_rows * row_height + extra)
+    figure = Figure(figsize=(width, height), dpi=100)
+    axes = figure.add_subplot(1, 1, 1)
+    return figure, axes
+
+
+def frame_figure(figure: Any, text: ChartText) -> Any:
+    """Place title, subtitle and caption on ``figure`` and leave room for them.
+
+    The title and subtitle sit above the plotting area, left-aligned with the
+    figure's edge; the caption sits at the foot in small grey type. Returns the
+    figure.
+    """
+    height = figure.get_figheight()
+    top_margin = (0.62 if text.subtitle else 0.40) / height
+    caption_lines = text.caption.count("\n") + 1 if text.caption else 0
+    bottom_margin = (0.48 + 0.15 * caption_lines) / height
+    figure.text(0.012, 1 - 0.14 / height, text.title, ha="left", va="top", fontsize=12, fontweight="bold",
+                color=INK)
+    if text.subtitle:
+        figure.text(0.012, 1 - 0.40 / height, text.subtitle, ha="left", va="top", fontsize=9, color=MUTED_INK,
+                    style="italic")
+    if text.caption:
+        figure.text(0.012, 0.06 / height, text.caption, ha="left", va="bottom", fontsize=7, color=MUTED_INK,
+                    linespacing=1.3)
+    figure.subplots_adjust(top=1 - top_margin - 0.1 / height, bottom=bottom_margin + 0.25 / height)
+    return figure
+
+
+def caption_text(*, source: str = "", base: str = "", weighting: str = "", interval: str = "",
+                 extra: Sequence[str] = ()) -> str:
+    """A caption from its parts: 'Source: ... Base: ... Weighting: ... Intervals: ...'."""
+    parts = [f"Source: {source}" if source else "", f"Base: {base}" if base else "",
+             f"Weighting: {weighting}" if weighting else "", f"Intervals: {interval}" if interval else ""]
+    first = " · ".join(p for p in parts[:2] if p)
+    second = " · ".join(p for p in parts[2:] if p)
+    return "\n".join(line for line in (first, second, *extra) if line)
+
+
+def percent_axis(axis: Any) -> None:
+    """Format an axis holding proportions (0-1) as whole percentages."""
+    from matplotlib.ticker import FuncFormatter
+
+    axis.set_major_formatter(FuncFormatter(lambda value, _: f"{value * 100:.0f}%"))
