@@ -87,6 +87,12 @@ class CodedSurvey:
         return [texts[r] if r >= 0 else None for r in rows.tolist()]
 
     @property
+    def input_paths(self) -> list[Path]:
+        """The files this survey was coded from (config, survey file, lexicon), for the writer to protect."""
+        paths = (self.config.path, self.config.survey, self.lexicon.source)
+        return [Path(p) for p in paths if p and not str(p).startswith("<")]
+
+    @property
     def theme_matrix(self) -> sp.csr_matrix:
         """(n_rows, n_themes) int8 0/1 theme matrix aligned with ``coded`` rows."""
         return self.result.matrix
@@ -298,8 +304,11 @@ def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig)
     return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
 
 
-def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
-    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically."""
+def write_coded(survey: CodedSurvey, out_dir: str | Path, inputs: tuple = ()) -> list[Path]:
+    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically.
+
+    The writer refuses an ``out_dir`` that would replace the survey's inputs or any of ``inputs``.
+    """
     files = {
         "coded.csv": csv_writer(survey.coded),
         "coded.parquet": parquet_writer(survey.coded),
@@ -307,7 +316,7 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
         **{name: csv_writer(table) for name, table in survey.extra_tables.items()},
     }
-    return write_outputs(out_dir, files, survey.manifest)
+    return write_outputs(out_dir, files, survey.manifest, inputs=[*survey.input_paths, *inputs])
 
 
 def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
