@@ -13,6 +13,8 @@ from typing import Any
 
 import click
 
+from .main import OUTPUT_FOLDER
+
 #: Decimals of shares, SEs and intervals in the CSV files (Parquet keeps full precision).
 CSV_DECIMALS = 4
 
@@ -78,12 +80,23 @@ def _rounded(table: Any) -> Any:
 
 
 def _csv(frame: Any, encoding: str) -> Any:
-    return lambda path: frame.to_csv(path, index=False, encoding=encoding)
+    from ..io.output import csv_writer
+
+    return csv_writer(frame, encoding=encoding)
+
+
+def _inputs(source: Path, record: dict) -> list:
+    """Every file and folder the result is read from (the writer refuses to replace any)."""
+    found = [source, record.get("coded", {}).get("path")]
+    if source.is_dir() or source.suffix.lower() not in (".yaml", ".yml"):
+        folder = source if source.is_dir() else source.parent
+        found.append(folder / "manifest.json")
+    return found
 
 
 @click.command("prevalence")
 @click.argument("coded_or_config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for prevalence.csv/.parquet, comparisons.csv, group_tests.csv and manifest.json.")
 @click.option("--by", "by", multiple=True, metavar="VAR",
               help="Group variable (repeatable); VAR1*VAR2 crosses two. Default: the config's groups.")
@@ -100,12 +113,13 @@ def _csv(frame: Any, encoding: str) -> Any:
               help="Leave out responses without a wave value (counted in the manifest) instead of refusing.")
 @click.option("--method", default=None, metavar="NAME",
               help="Interval method: korn-graubard (default), logit or wilson.")
-@click.option("--confidence", default=0.95, show_default=True, type=float, help="Confidence level.")
+@click.option("--confidence", default=0.95, show_default=True,
+              type=click.FloatRange(0, 1, min_open=True, max_open=True), help="Confidence level.")
 @click.option("--rule", "rule_name", default=None, metavar="NAME",
               help="Publishing rule: base-width (default), rse-25-50 or rse-16-33.")
-@click.option("--min-base", type=int, default=None,
+@click.option("--min-base", type=click.IntRange(min=0), default=None,
               help="Override the rule: unweighted base below this is suppressed.")
-@click.option("--caution-rse", type=float, default=None,
+@click.option("--caution-rse", type=click.FloatRange(min=0, min_open=True), default=None,
               help="Override the rule: relative SE at or above this (e.g. 0.3) is flagged caution.")
 @click.option("--encoding", default="utf-8-sig", show_default=True,
               help="Text encoding of the CSV files (utf-8-sig: UTF-8 with a BOM, read correctly by "
@@ -196,7 +210,7 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
                                 "(--encoding); use utf-8-sig or utf-8") from None
         files["prevalence_wide.csv"] = lambda path: Path(path).write_bytes(wide_bytes)
         manifest["settings"].update(layout="wide", reference=reference)
-    write_outputs(out_dir, files, manifest)
+    write_outputs(out_dir, files, manifest, inputs=_inputs(coded_or_config, record))
     if not quiet:
         flags = table["flag"].value_counts()
         left_out = f"; {dropped} response(s) without a wave left out" if dropped else ""

@@ -45,6 +45,7 @@ from typing import Any
 import yaml
 
 from ..errors import InputError
+from .yaml_files import BoundedLoader, read_yaml_bytes
 
 #: Survey file suffix (lower case) -> reader family.
 SURVEY_FORMATS: dict[str, str] = {
@@ -667,14 +668,14 @@ def load_config(path: str | Path) -> SurveyConfig:
     if config_path.is_dir():
         raise InputError("expected a survey config file (YAML), found a folder", source=config_path)
     try:
-        text = config_path.read_bytes().decode("utf-8-sig")
+        text = read_yaml_bytes(config_path, "survey config").decode("utf-8-sig")
     except UnicodeDecodeError as error:
         raise InputError(f"a survey config must be UTF-8 text (bad byte at offset {error.start})",
                          source=config_path) from error
     except OSError as error:
         raise InputError(f"cannot read the survey config: {error.strerror}", source=config_path) from error
     builder = _Builder(config_path)
-    loader = yaml.SafeLoader(text)
+    loader = BoundedLoader(text)
     try:
         node = loader.get_single_node()
     except yaml.MarkedYAMLError as error:

@@ -20,6 +20,16 @@ Decisions
   and is counted in a note, so the response still counts in the overall figures.
 - Id, strata, cluster, wave and group columns become trimmed text (SPSS value labels
   applied, whole numbers written without ``.0``); weight and fpc become float64.
+- Limits: only regular files are read (a device, pipe or socket is refused before it
+  is opened) and none over :data:`MAX_SURVEY_BYTES` (2 GiB). An answer longer than
+  :data:`MAX_ANSWER_CHARS` characters (20,000, about 3,500 words; a config's
+  ``max_answer_chars`` overrides it) is cut to that length before coding; how many
+  answers were cut and how many characters were left out is reported in a note.
+- Refused with one line rather than read wrongly: a quoted CSV cell that is never
+  closed or is followed by stray text (the line it starts on is named), an Excel
+  workbook with no sheets, a formula cell without a saved result (the workbook was
+  written by a program that does not compute formulas: open and save it in a
+  spreadsheet program), and hand codes that are not theme ids (``1``, ``yes``...).
 """
 
 from __future__ import annotations
@@ -50,9 +60,17 @@ from .data_checks import (
     check_weights,
 )
 from .output import file_sha256
+from .yaml_files import check_regular_file
 
 #: Label given to a missing wave or group value.
 MISSING_LABEL = "(missing)"
+#: Largest survey file read, in bytes.
+MAX_SURVEY_BYTES = 2 * 1024**3
+#: Default longest answer coded, in characters (the rest is counted in a note).
+MAX_ANSWER_CHARS = 20_000
+#: Hand codes that are answers to a yes/no question, not theme ids.
+_NOT_THEME_IDS = {"yes", "no", "y", "n", "true", "false", "x", "ok", "none", "na", "nan", "null"}
+_THEME_ID = re.compile(r"[a-z][a-z0-9_]*\Z")
 
 _CSV_DELIMITERS = (",", ";", "\t", "|")
 _DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
@@ -163,10 +181,7 @@ def read_table(path: str | Path, *, sheet: str | int | None = None, table: str |
             raise InputError(misfit, source=source)
     if table is not None and query is not None:
         raise InputError("give either a table or a query, not both", source=source)
-    try:
-        size = source.stat().st_size
-    except OSError as error:
-        raise InputError(f"cannot read the file: {error.strerror}", source=source) from error
+    size = check_regular_file(source, "survey file", MAX_SURVEY_BYTES)
     if size == 0:
         raise InputError("the file is empty (0 bytes); expected a header row and data rows", source=source)
 
@@ -292,10 +307,32 @@ def _read_csv(source: Path, encoding: str | None, delimiter: str | None, notes: 
             raise InputError("a quoted cell starting in this row is never closed (missing '\"')",
                              source=source, row=int(match.group(1))) from None
         raise InputError(f"not readable as CSV: {message.split('C error: ')[-1]}", source=source) from None
+    if '"' in text:
+        _check_quoting(text, delimiter, source)
     header = raw.iloc[0].tolist()
     frame = raw.iloc[1:].reset_index(drop=True)
     frame.columns = header
     return frame
+
+
+def _check_quoting(text: str, delimiter: str, source: Path) -> None:
+    """Refuse a quoted cell that is never closed or has text after its closing quote.
+
+    The C parser reads such a cell on, taking the following rows into it, so the
+    error would surface later as a wrong field (a "missing weight"). Python's csv
+    module in strict mode stops at the spot; the line where the bad row starts is named.
+    """
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, quotechar='"', strict=True)
+    start = 1
+    try:
+        for _ in reader:
+            start = reader.line_num + 1
+    except csv.Error as error:
+        problem = ("is never closed" if "end of data" in str(error)
+                   else "has text after its closing quote")
+        raise InputError(f"a quoted cell in the row starting on this line {problem} (missing or stray '\"'; "
+                         "a '\"' inside a quoted cell must be doubled: \"\")", source=source,
+                         line=start) from None
 
 
 def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.DataFrame:
@@ -306,6 +343,8 @@ def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.D
                          source=source) from None
     with book:
         names = list(book.sheet_names)
+        if not names:
+            raise InputError("the workbook has no sheets; save the survey table in a sheet", source=source)
         listing = ", ".join(repr(n) for n in names)
         if sheet is None:
             chosen = names[0]
@@ -328,10 +367,43 @@ def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.D
                              source=source) from None
     if raw.empty:
         raise InputError(f"sheet {chosen!r} is empty; expected a header row and data rows", source=source)
+    if raw.isna().to_numpy().any():
+        _check_formula_results(source, chosen)
     header = raw.iloc[0].tolist()
     frame = raw.iloc[1:].reset_index(drop=True).infer_objects()
     frame.columns = header
     return frame
+
+
+_FORMULA_ELEMENT = re.compile(rb"<(?:\w+:)?f[ >]")
+
+
+def _check_formula_results(source: Path, sheet: str) -> None:
+    """Refuse a formula cell of ``sheet`` that has no saved result (it would read as missing)."""
+    import zipfile
+
+    import openpyxl
+
+    try:
+        with zipfile.ZipFile(source) as archive:
+            parts = [n for n in archive.namelist() if n.startswith("xl/worksheets/") and n.endswith(".xml")]
+            if not any(_FORMULA_ELEMENT.search(archive.read(n)) for n in parts):
+                return  # no formulas anywhere: the usual case, decided without parsing the sheet twice
+        formulas = openpyxl.load_workbook(source, read_only=True, data_only=False)
+        results = openpyxl.load_workbook(source, read_only=True, data_only=True)
+    except Exception:  # the workbook was read once already; leave damage to that reader
+        return
+    try:
+        for cells, values in zip(formulas[sheet].iter_rows(), results[sheet].iter_rows(values_only=True),
+                                 strict=False):
+            for cell, value in zip(cells, values, strict=False):
+                if getattr(cell, "data_type", None) == "f" and value is None:
+                    raise InputError(f"cell {cell.coordinate} of sheet {sheet!r} holds a formula with no saved "
+                                     "result, so its value is unknown; open the workbook in a spreadsheet "
+                                     "program and save it (or paste the values)", source=source)
+    finally:
+        formulas.close()
+        results.close()
 
 
 def _read_parquet(source: Path) -> pd.DataFrame:
@@ -605,6 +677,49 @@ def _check_columns_present(frame: pd.DataFrame, config: SurveyConfig, source: Pa
                      column=column)
 
 
+def _cap_answers(text: pd.Series, cap: int, what: str, source: Path, notes: list[str]) -> pd.Series:
+    """Cut answers longer than ``cap`` characters to ``cap``; count what was left out in a note."""
+    lengths = text.str.len()
+    over = (lengths > cap).fillna(False).to_numpy(dtype=bool)
+    if not over.any():
+        return text
+    left_out = int((lengths[over] - cap).sum())
+    text = text.copy()
+    text[over] = text[over].str.slice(0, cap)
+    notes.append(f"{source}: {int(over.sum())} answer(s) to {what} are longer than {cap:,} characters "
+                 f"(longest {int(lengths.max()):,}); only the first {cap:,} of each were coded, "
+                 f"{left_out:,} characters left out (max_answer_chars sets the limit)")
+    return text
+
+
+def check_hand_code_ids(frame: pd.DataFrame, codes_column: str, source: str | Path,
+                        known_ids: tuple[str, ...] | list[str] = ()) -> None:
+    """Refuse hand codes that cannot be theme ids (``2``, ``yes``, ``no``, ``Toilets``).
+
+    ``codes_column`` holds theme ids separated by ``;``; ids are lower-case letters,
+    digits and ``_``, starting with a letter (``known_ids`` are always accepted). A
+    frame without that column (the wide 0/1 form) is left alone.
+
+    Raises
+    ------
+    InputError
+        Naming the first such code with its row and column.
+    """
+    if codes_column not in frame.columns:
+        return
+    known = set(known_ids)
+    for row, value in enumerate(_as_text(frame[codes_column]), start=1):
+        if not isinstance(value, str):
+            continue
+        for code in (part.strip() for part in value.split(";")):
+            if not code or code in known:
+                continue
+            if not _THEME_ID.match(code) or code in _NOT_THEME_IDS:
+                raise InputError(f"hand code {code!r} is not a theme id; list the ids of the themes an answer "
+                                 "has, separated by ';' (a yes/no or 0/1 column is not a hand code)",
+                                 source=source, row=row, column=codes_column)
+
+
 def read_survey(config: SurveyConfig, *, missing_design: str = "refuse") -> SurveyData:
     """Read the survey a config names and check it against the config.
 
@@ -655,8 +770,10 @@ def read_survey(config: SurveyConfig, *, missing_design: str = "refuse") -> Surv
     check_ids(ids, config.id_column, places, problems)
     frame[config.id_column] = ids
 
+    cap = getattr(config, "max_answer_chars", None) or MAX_ANSWER_CHARS
     for name, column in config.questions.items():
-        text = _as_text(frame[column])
+        text = _cap_answers(_as_text(frame[column]), cap, f"question {name!r} (column {column!r})", source,
+                            notes)
         if not text.fillna("").str.strip().ne("").any():
             raise InputError(f"the text column of question {name!r} is empty in every row", source=source,
                              column=column)
