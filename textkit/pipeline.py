@@ -89,7 +89,8 @@ class CodedSurvey:
     @property
     def input_paths(self) -> list[Path]:
         """The files this survey was coded from (config, survey file, lexicon), for the writer to protect."""
-        paths = (self.config.path, self.config.survey, self.lexicon.source)
+        paths = (self.config.path, self.config.survey, *(path for _, path in self.config.survey_waves),
+                 self.lexicon.source)
         return [Path(p) for p in paths if p and not str(p).startswith("<")]
 
     @property
@@ -117,7 +118,8 @@ def _no_progress(step: str) -> None:
 
 
 def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
-                progress: Callable[[str], None] | None = None, apply_corrections: bool = True) -> CodedSurvey:
+                progress: Callable[[str], None] | None = None, apply_corrections: bool = True,
+                missing_design: str = "refuse") -> CodedSurvey:
     """Read a survey and code every answer of every open question.
 
     Parameters
@@ -131,6 +133,10 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     apply_corrections : bool, default True
         Apply the corrections file the config names (see :func:`apply_configured_corrections`);
         False gives the lexicon's codes alone (to score or compare lexicons).
+    missing_design : {"refuse", "drop"}, default "refuse"
+        Weight or design columns the config names but the data lacks: refuse, or
+        code without them with a warning in ``notes`` (``textkit code`` does so;
+        the manifest keeps the config's roles, so ``textkit prevalence`` refuses).
 
     Raises
     ------
@@ -145,7 +151,7 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
             raise InputError("the config names no lexicon; add 'lexicon: <path>' or pass one",
                              source=config.path)
         lexicon = config.lexicon
-    data = read_survey(config)
+    data = read_survey(config, missing_design=missing_design)
     step("loading lexicon")
     lex = lexicon if isinstance(lexicon, Lexicon) else load_lexicon(lexicon)
 
@@ -173,16 +179,17 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     result = coder.code(stream, texts=text_list)
 
     step("assembling tables")
-    coded = _coded_table(frame, config, questions, answered, result)
+    coded = _coded_table(frame, data.config, questions, answered, result)
     corrections = None
     if apply_corrections and config.corrections is not None:
         coded, corrections = apply_configured_corrections(coded, result, lex, config)
     evidence = _evidence_table(coded, result)
-    coverage = _coverage_table(coded, lex, config)
+    coverage = _coverage_table(coded, lex, data.config)
     manifest = {
         "command": "code",
         "config": {"path": str(config.path), "sha256": file_sha256(config.path)},
-        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses},
+        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses,
+                   **({"wave_files": data.files} if data.files else {})},
         "lexicon": {"path": lex.source, "sha256": lex.sha256, "name": lex.name, "version": lex.version},
         "settings": {"negation_window": lex.negation_window, "seed": config.seed,
                      "non_answers": list(config.non_answers)},

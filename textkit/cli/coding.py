@@ -27,16 +27,21 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics:
     from ..pipeline import code_survey, find_survey_topics, with_topics, write_coded
 
     with steps(7 if topics else 6, quiet) as progress:
-        survey = code_survey(config, lexicon=lexicon_path, progress=progress)
+        # coding uses no weight or design column: one the data lacks is a warning here
+        survey = code_survey(config, lexicon=lexicon_path, progress=progress, missing_design="drop")
         if topics:
             progress("finding topics")
             survey = with_topics(survey, find_survey_topics(survey))
         progress("writing")
         paths = write_coded(survey, out_dir)
+    for note in survey.notes:
+        if note.startswith("warning: "):
+            click.echo(note, err=True)
     if quiet:
         return
     for note in survey.notes:
-        click.echo(f"note: {note}", err=True)
+        if not note.startswith("warning: "):
+            click.echo(f"note: {note}", err=True)
     counts = survey.manifest["counts"]
     click.echo(f"coded {counts['rows']:,} answers ({counts['responses']:,} responses x "
                f"{len(survey.config.questions)} questions; {counts['answered']:,} answered) "

@@ -158,6 +158,8 @@ def main(argv: list[str] | None = None) -> int:
         cli.main(args=argv, prog_name="textkit", standalone_mode=False)
     except TextkitError as error:
         click.echo(f"textkit: error: {error}", err=True)
+        for line in getattr(error, "detail_lines", ()):  # DataProblemsError: one problem a line
+            click.echo(f"  {line}", err=True)
         return 2
     except OSError as error:  # a disk full or a folder we may not write: still one line
         where = f"{error.filename}: " if error.filename else ""

@@ -124,11 +124,18 @@ def _inputs(source: Path, record: dict) -> list:
 @click.option("--encoding", default="utf-8-sig", show_default=True,
               help="Text encoding of the CSV files (utf-8-sig: UTF-8 with a BOM, read correctly by "
                    "spreadsheet software on every platform).")
+@click.option("--layout", type=click.Choice(["long", "wide"]), default="long", show_default=True,
+              help="wide also writes prevalence_wide.csv: themes down, groups across, percentages, "
+                   "suppressed cells blank, caution and significance marks, footnotes.")
+@click.option("--reference", default=None, metavar="GROUP",
+              help="With --layout wide: mark differences against this group (VAR=GROUP if ambiguous) "
+                   "instead of against the rest of the sample.")
 @click.option("--quiet", is_flag=True, help="Print nothing on success.")
 def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...], questions: tuple[str, ...],
                        themes: tuple[str, ...], waves: tuple[str, ...], base: str, totals: bool, family: str,
                        drop_missing_wave: bool, method: str | None, confidence: float, rule_name: str | None,
-                       min_base: int | None, caution_rse: float | None, encoding: str, quiet: bool) -> None:
+                       min_base: int | None, caution_rse: float | None, encoding: str, layout: str,
+                       reference: str | None, quiet: bool) -> None:
     """Weighted theme prevalence by group and wave, with comparisons and tests.
 
     CODED_OR_CONFIG is a folder written by 'textkit code' (coded.parquet and
@@ -147,6 +154,8 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
     from ..stats.estimate import drop_missing_wave as without_missing_wave
 
     rule = _rule(rule_name, min_base, caution_rse)
+    if reference is not None and layout != "wide":
+        raise AnalysisError("--reference applies to the wide layout; add --layout wide")
     try:
         codecs.lookup(encoding)
     except LookupError:
@@ -186,11 +195,22 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
         "dropped_responses_missing_wave": dropped,
         "counts": {"prevalence": len(table), "comparisons": len(comparisons), "group_tests": len(tests)},
     }
-    write_outputs(out_dir, {"prevalence.csv": _csv(_rounded(table), encoding),
-                            "prevalence.parquet": parquet_writer(table.astype({"wave": str, "group": str})),
-                            "comparisons.csv": _csv(_rounded(comparisons), encoding),
-                            "group_tests.csv": _csv(_rounded(tests), encoding)}, manifest,
-                 inputs=_inputs(coded_or_config, record))
+    files = {"prevalence.csv": _csv(_rounded(table), encoding),
+             "prevalence.parquet": parquet_writer(table.astype({"wave": str, "group": str})),
+             "comparisons.csv": _csv(_rounded(comparisons), encoding),
+             "group_tests.csv": _csv(_rounded(tests), encoding)}
+    if layout == "wide":
+        from ..stats.crosstab import crosstab
+
+        wide = crosstab(table, comparisons, reference=reference, base=base, rule_name=rule.name)
+        try:
+            wide_bytes = wide.csv_text().encode(encoding)
+        except UnicodeEncodeError:
+            raise AnalysisError(f"the wide table's marks or labels cannot be written in '{encoding}' "
+                                "(--encoding); use utf-8-sig or utf-8") from None
+        files["prevalence_wide.csv"] = lambda path: Path(path).write_bytes(wide_bytes)
+        manifest["settings"].update(layout="wide", reference=reference)
+    write_outputs(out_dir, files, manifest, inputs=_inputs(coded_or_config, record))
     if not quiet:
         flags = table["flag"].value_counts()
         left_out = f"; {dropped} response(s) without a wave left out" if dropped else ""
