@@ -87,6 +87,13 @@ class CodedSurvey:
         return [texts[r] if r >= 0 else None for r in rows.tolist()]
 
     @property
+    def input_paths(self) -> list[Path]:
+        """The files this survey was coded from (config, survey file, lexicon), for the writer to protect."""
+        paths = (self.config.path, self.config.survey, *(path for _, path in self.config.survey_waves),
+                 self.lexicon.source)
+        return [Path(p) for p in paths if p and not str(p).startswith("<")]
+
+    @property
     def theme_matrix(self) -> sp.csr_matrix:
         """(n_rows, n_themes) int8 0/1 theme matrix aligned with ``coded`` rows."""
         return self.result.matrix
@@ -111,7 +118,8 @@ def _no_progress(step: str) -> None:
 
 
 def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
-                progress: Callable[[str], None] | None = None, apply_corrections: bool = True) -> CodedSurvey:
+                progress: Callable[[str], None] | None = None, apply_corrections: bool = True,
+                missing_design: str = "refuse") -> CodedSurvey:
     """Read a survey and code every answer of every open question.
 
     Parameters
@@ -125,6 +133,10 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     apply_corrections : bool, default True
         Apply the corrections file the config names (see :func:`apply_configured_corrections`);
         False gives the lexicon's codes alone (to score or compare lexicons).
+    missing_design : {"refuse", "drop"}, default "refuse"
+        Weight or design columns the config names but the data lacks: refuse, or
+        code without them with a warning in ``notes`` (``textkit code`` does so;
+        the manifest keeps the config's roles, so ``textkit prevalence`` refuses).
 
     Raises
     ------
@@ -139,7 +151,7 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
             raise InputError("the config names no lexicon; add 'lexicon: <path>' or pass one",
                              source=config.path)
         lexicon = config.lexicon
-    data = read_survey(config)
+    data = read_survey(config, missing_design=missing_design)
     step("loading lexicon")
     lex = lexicon if isinstance(lexicon, Lexicon) else load_lexicon(lexicon)
 
@@ -167,16 +179,17 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     result = coder.code(stream, texts=text_list)
 
     step("assembling tables")
-    coded = _coded_table(frame, config, questions, answered, result)
+    coded = _coded_table(frame, data.config, questions, answered, result)
     corrections = None
     if apply_corrections and config.corrections is not None:
         coded, corrections = apply_configured_corrections(coded, result, lex, config)
     evidence = _evidence_table(coded, result)
-    coverage = _coverage_table(coded, lex, config)
+    coverage = _coverage_table(coded, lex, data.config)
     manifest = {
         "command": "code",
         "config": {"path": str(config.path), "sha256": file_sha256(config.path)},
-        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses},
+        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses,
+                   **({"wave_files": data.files} if data.files else {})},
         "lexicon": {"path": lex.source, "sha256": lex.sha256, "name": lex.name, "version": lex.version},
         "settings": {"negation_window": lex.negation_window, "seed": config.seed,
                      "non_answers": list(config.non_answers)},
@@ -298,8 +311,11 @@ def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig)
     return pd.concat(frames, ignore_index=True)[COVERAGE_COLUMNS]
 
 
-def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
-    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically."""
+def write_coded(survey: CodedSurvey, out_dir: str | Path, inputs: tuple = ()) -> list[Path]:
+    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically.
+
+    The writer refuses an ``out_dir`` that would replace the survey's inputs or any of ``inputs``.
+    """
     files = {
         "coded.csv": csv_writer(survey.coded),
         "coded.parquet": parquet_writer(survey.coded),
@@ -307,7 +323,7 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
         **{name: csv_writer(table) for name, table in survey.extra_tables.items()},
     }
-    return write_outputs(out_dir, files, survey.manifest)
+    return write_outputs(out_dir, files, survey.manifest, inputs=[*survey.input_paths, *inputs])
 
 
 def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
@@ -351,6 +367,288 @@ def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
         for column in numeric:
             frame[column] = pd.to_numeric(frame[column], errors="coerce")
     return frame, manifest, data_path
+
+
+# --------------------------------------------------------------------------- topics
+
+def survey_text(survey: CodedSurvey, *, exclude_groups: bool = False):
+    """The :class:`textkit.discover.topic_tables.SurveyText` of a coded survey (for topic discovery)."""
+    from .discover.topic_tables import SurveyText
+
+    roles = survey.roles
+    groups = [c for c in dict.fromkeys([*roles.get("groups", []), roles.get("wave")]) if c]
+    evidence = survey.result.evidence
+    return SurveyText(
+        stream=survey.stream, texts=survey.texts.tolist(), response_ids=survey.coded["response_id"].to_numpy(),
+        questions=survey.coded["question"].to_numpy(), answered=survey.coded["answered"].to_numpy(dtype=bool),
+        theme_matrix=survey.theme_matrix, themes=survey.themes,
+        evidence_rows=evidence["document"].to_numpy(), evidence_starts=evidence["start"].to_numpy(),
+        evidence_ends=evidence["end"].to_numpy(),
+        weights=survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None,
+        groups=None if exclude_groups else survey.coded[groups])
+
+
+def find_survey_topics(survey: CodedSurvey, questions: list[str] | None = None, *, scope: str = "unexplained",
+                       theme: str | None = None, exclude=None, **model_options):
+    """Topics of a coded survey (:func:`textkit.discover.topic_tables.find_topics`), seeded by its config."""
+    from .discover.topic_tables import find_topics
+
+    model_options.setdefault("random_state", int(survey.config.seed or 0))
+    model_options.setdefault("language", survey.lexicon.language)
+    return find_topics(survey_text(survey), list(questions or survey.config.questions), scope=scope,
+                       theme=theme, exclude=exclude, **model_options)
+
+
+def with_topics(survey: CodedSurvey, topics) -> CodedSurvey:
+    """The survey with topic 0/1 columns beside the theme columns, listed as codes of kind ``topic``.
+
+    ``coded`` gains ``topic_01`` ... after the theme columns; ``coverage`` gains
+    a ``kind`` column (``theme``/``topic``) and one row per topic; the manifest
+    lists the topics in ``themes`` (so ``textkit prevalence`` estimates them
+    exactly as themes) and describes every code in ``codes`` (id, kind, label,
+    question).
+    """
+    import dataclasses
+
+    coded = survey.coded
+    dense = topics.codes.toarray().astype(np.int8)
+    at = coded.columns.get_loc("n_themes")
+    topic_frame = pd.DataFrame(dense, columns=topics.topic_ids, index=coded.index)
+    coded = pd.concat([coded.iloc[:, :at], topic_frame, coded.iloc[:, at:]], axis=1)
+    coverage = survey.coverage.assign(kind="theme")
+    weights = coded[survey.config.weight].to_numpy(dtype=float) if survey.config.weight else np.ones(len(coded))
+    rows = []
+    for index, (topic, question) in enumerate(zip(topics.topic_ids, topics.topic_questions, strict=True)):
+        inside = (coded["question"] == question).to_numpy() & coded["answered"].to_numpy(dtype=bool)
+        values, w = dense[inside, index].astype(float), weights[inside]
+        rows.append({"question": question, "theme": topic, "label": topics.labels[index], "parent": "",
+                     "responses_coded": int(values.sum()), "answered": int(inside.sum()),
+                     "share": values.mean() if inside.any() else np.nan,
+                     "weighted_share": (w @ values) / w.sum() if w.sum() > 0 else np.nan, "kind": "topic"})
+    coverage = pd.concat([coverage, pd.DataFrame(rows, columns=coverage.columns)], ignore_index=True)
+    manifest = dict(survey.manifest)
+    manifest["themes"] = [*survey.themes, *topics.topic_ids]
+    manifest["codes"] = ([{"id": t.id, "kind": "theme", "label": t.label, "question": None}
+                          for t in survey.lexicon.themes]
+                         + [{"id": t, "kind": "topic", "label": label, "question": q}
+                            for t, label, q in zip(topics.topic_ids, topics.labels, topics.topic_questions,
+                                                   strict=True)])
+    manifest["topics"] = {"scope": topics.scope, "counts": topics.counts,
+                          "k": {q: m.n_topics_ for q, m in topics.models.items()}}
+    return dataclasses.replace(survey, coded=coded, coverage=coverage, manifest=manifest)
+
+
+# ---------------------------------------------------------------------------
+# The report: every stage in one run (textkit report / textkit demo)
+# ---------------------------------------------------------------------------
+@dataclass
+class SurveyReport:
+    """Everything ``textkit report`` writes, in memory: ``files`` (relative name -> bytes) and the manifest."""
+
+    files: dict[str, bytes]
+    manifest: dict
+    timings: dict[str, float]
+    summaries: list = field(default_factory=list)
+
+
+class _Stages:
+    """Runs named stages, timing each and naming the stage in any error it raises."""
+
+    def __init__(self, progress: Callable[[str, float], None] | None) -> None:
+        self.progress = progress or (lambda name, seconds: None)
+        self.timings: dict[str, float] = {}
+
+    def run(self, name: str, function: Callable, *args, **kwargs):
+        import time
+
+        from .errors import TextkitError
+
+        started = time.perf_counter()
+        try:
+            value = function(*args, **kwargs)
+        except TextkitError as error:
+            raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
+                              row=error.row, column=error.column) from error
+        self.timings[name] = round(time.perf_counter() - started, 3)
+        self.progress(name, self.timings[name])
+        return value
+
+
+def summary_group_variables(config: SurveyConfig) -> list[str]:
+    """Group variables ``--summaries`` accepts: the config's ``groups``."""
+    return list(config.groups)
+
+
+def check_summary_variable(config: SurveyConfig, group_var: str | None) -> None:
+    """Refuse an unknown ``--summaries`` variable before any work, listing the valid ones."""
+    valid = summary_group_variables(config)
+    if group_var is not None and group_var not in valid:
+        raise InputError(f"--summaries: the config has no group variable '{group_var}'; valid ones: "
+                         f"{', '.join(valid) or 'none (add groups: to the config)'}", source=config.path)
+
+
+def _report_statistics(survey: CodedSurvey):
+    from .stats.design import SurveyDesign
+    from .stats.estimate import DEFAULT_METHOD, DEFAULT_RULE, analyse
+
+    roles = survey.roles
+    design = SurveyDesign.from_config(survey.config, survey.coded, id="response_id")
+    analysis = analyse(survey.coded, list(survey.themes), design, groups=list(roles.get("groups") or []),
+                       wave=roles.get("wave"), method=DEFAULT_METHOD, rule=DEFAULT_RULE)
+    facts = {"method": DEFAULT_METHOD, "rule": f"{DEFAULT_RULE.name} ({DEFAULT_RULE.origin})",
+             "design": f"{design.n_strata} strata, {design.n_psus} PSUs, {design.df} df"}
+    return analysis.prevalence(), analysis.comparisons(), analysis.group_tests(), facts
+
+
+def _report_keyness(survey: CodedSurvey, max_terms: int = 15) -> pd.DataFrame:
+    from .discover.keyness import KEYNESS_COLUMNS, compare
+    from .text.ngrams import document_term_matrix
+
+    roles = survey.roles
+    wave = roles.get("wave")
+    by = list(dict.fromkeys([*(roles.get("groups") or []), *([wave] if wave else [])]))
+    answered_rows = survey.coded[survey.coded["answered"] == 1]
+    by = [v for v in by if answered_rows[v].nunique() >= 2]  # one wave or one group: nothing to set apart
+    wave = wave if wave in by else None
+    if not by:
+        return pd.DataFrame(columns=KEYNESS_COLUMNS)
+    matrix, terms, n_words = document_term_matrix(survey.stream, binary=True)
+    weights = survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None
+    answered = survey.coded["answered"].to_numpy(dtype=bool)
+    tables = [compare(matrix, terms, n_words, survey.coded[by], weights=weights, by=by, wave=wave, question=q,
+                      answered=answered & (survey.coded["question"] == q).to_numpy(), max_terms=max_terms)
+              for q in survey.config.questions]
+    return pd.concat(tables, ignore_index=True)[KEYNESS_COLUMNS]
+
+
+def _report_agreement(survey: CodedSurvey, hand_coded: Path) -> pd.DataFrame:
+    from .coding.agreement import compare_with_hand_codes
+    from .io.readers import read_table
+
+    frame, _ = read_table(hand_coded)
+    for column in ("text", "themes"):
+        if column not in frame.columns:
+            raise InputError(f"the hand-coded sample needs columns 'text' and 'themes'; found: "
+                             f"{', '.join(map(str, frame.columns))}", source=hand_coded, column=column)
+    table, _ = compare_with_hand_codes(frame["text"].tolist(), frame["themes"].tolist(), survey.lexicon,
+                                       source=str(hand_coded))
+    return table
+
+
+def _frame_csv(frame: pd.DataFrame) -> bytes:
+    from .io.export import neutralise_frame
+
+    return neutralise_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
+
+
+def _missing_pieces() -> dict[str, str]:
+    """Pieces the report does not include in this build, with the reason the report gives.
+
+    Charts, word clouds and quotes (``textkit.present.charts``/``clouds``/``quotes``) and topics
+    (``textkit.discover.topics``) are not yet assembled into the report, whether or not their
+    modules are installed; the report says so instead of leaving a stand-in.
+    """
+    import importlib.util
+
+    wanted = {"topics": ("textkit.discover.topics", "topics"),
+              "charts": ("textkit.present.charts", "charts and word clouds"),
+              "quotes": ("textkit.present.quotes", "the quote picker")}
+    missing = {}
+    for name, (module, what) in wanted.items():
+        present = importlib.util.find_spec(module) is not None
+        missing[name] = (f"{what.capitalize()} exist in this package but are not yet assembled into the report."
+                         if present else f"{what.capitalize()} are not in this build.")
+    return missing
+
+
+def _report_files(inputs, summaries: list) -> dict[str, bytes]:
+    from .io.export import workbook_bytes
+    from .present.report import PERCENT_COLUMNS, column_notes, render_report, report_tables
+    from .present.summary import file_stems, summary_html, summary_pdf
+
+    tables = report_tables(inputs)
+    files = {"index.html": render_report(inputs).encode("utf-8"),
+             "tables.xlsx": workbook_bytes(tables, column_notes(tables), PERCENT_COLUMNS)}
+    files.update({f"{name}.csv": _frame_csv(frame) for name, frame in tables.items()})
+    if inputs.quotes is not None:
+        files["quotes.csv"] = _frame_csv(inputs.quotes)
+    for figure in inputs.figures:
+        files[f"charts/{figure.name}.svg"] = figure.svg
+        if figure.png:
+            files[f"charts/{figure.name}.png"] = figure.png
+    stems = file_stems([s.group for s in summaries])
+    for summary in summaries:
+        files[f"summaries/{stems[summary.group]}.pdf"] = summary_pdf(summary)
+        files[f"summaries/{stems[summary.group]}.html"] = summary_html(summary).encode("utf-8")
+    return files
+
+
+def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = None,
+                 hand_coded: str | Path | None = None,
+                 progress: Callable[[str, float], None] | None = None) -> SurveyReport:
+    """Run every stage (code, topics, statistics, keyness, agreement, charts, quotes, report, summaries).
+
+    Parameters
+    ----------
+    config : path or SurveyConfig
+    summaries : str, optional
+        A group variable of the config: one one-page summary per group.
+    hand_coded : path, optional
+        A hand-coded sample (columns ``text`` and ``themes``) for the agreement figures.
+    progress : callable(stage, seconds), optional
+        Called after each stage.
+
+    Raises
+    ------
+    TextkitError
+        Naming the stage; an unknown ``summaries`` variable is refused before any work.
+    """
+    from .io.output import library_versions
+    from .present.report import ReportInputs, waves_of
+    from .present.summary import group_summaries
+
+    config = config if isinstance(config, SurveyConfig) else load_config(config)
+    check_summary_variable(config, summaries)
+    stages = _Stages(progress)
+    survey = stages.run("code", code_survey, config)
+    missing = _missing_pieces()
+    prevalence, comparisons, tests, facts = stages.run("statistics", _report_statistics, survey)
+    keyness = stages.run("keyness", _report_keyness, survey)
+    agreement = None if hand_coded is None else stages.run("agreement", _report_agreement, survey, Path(hand_coded))
+    labels = {theme.id: theme.label for theme in survey.lexicon.themes}
+    manifest = survey.manifest
+    facts.update({"responses": manifest["counts"]["responses"], "answers": manifest["counts"]["answered"],
+                  "waves": waves_of(prevalence), "weighted": bool(config.weight), "lexicon": survey.lexicon.name,
+                  "lexicon_sha256": survey.lexicon.sha256, "survey": Path(config.survey).name,
+                  "survey_sha256": manifest["survey"]["sha256"], "version": library_versions(("textkit",))
+                  .get("textkit", "")})
+    inputs = ReportInputs(title=f"Survey report: {Path(config.path).name}", questions=list(config.questions),
+                          prevalence=prevalence, comparisons=comparisons, group_tests=tests, labels=labels,
+                          keyness=keyness, agreement=agreement,
+                          agreement_source=Path(hand_coded).name if hand_coded else "", missing=missing, facts=facts)
+    pages = [] if summaries is None else stages.run(
+        "summaries", group_summaries, prevalence, comparisons, summaries, labels, list(config.questions),
+        quotes=inputs.quotes, survey_title=inputs.title)
+    files = stages.run("report", _report_files, inputs, pages)
+    report_manifest = {
+        "command": "report", "config": manifest["config"], "survey": manifest["survey"],
+        "lexicon": manifest["lexicon"], "roles": manifest["roles"], "notes": manifest["notes"],
+        "hand_coded": None if hand_coded is None else {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
+        "settings": {"seed": config.seed, "summaries": summaries, "method": facts["method"], "rule": facts["rule"],
+                     "fdr_level": 0.05, "keyness_max_terms": 15},
+        "not_available": missing, "timings_seconds": stages.timings,
+        "versions": library_versions(("textkit", "numpy", "scipy", "pandas", "scikit-learn", "nltk", "statsmodels",
+                                      "matplotlib", "jinja2", "openpyxl", "wordcloud")),
+    }
+    return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages)
+
+
+def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
+    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none."""
+    from .io.export import bytes_writer, write_tree
+
+    return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
+                      report.manifest)
 
 
 # --------------------------------------------------------------------------- the learned coder
@@ -417,7 +715,7 @@ def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sh
     from .io.output import library_versions
 
     step = progress or _no_progress
-    survey = code_survey(config, progress=step, apply_corrections=False)
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
     step("training")
     hand, texts, place = read_hand_codes_for(survey, hand_codes, sheet=sheet, codes_column=codes_column,
                                             text_column=text_column, leave_out=leave_out)
@@ -486,7 +784,7 @@ def code_survey_with_coder(config: str | Path | SurveyConfig, coder: str | Path 
     score and the features that pushed it most.
     """
     step = progress or _no_progress
-    survey = code_survey(config, progress=step, apply_corrections=False)
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
     trained = coder if isinstance(coder, TrainedCoder) else load_trained_coder(coder, survey.lexicon)
     if trained.manifest["lexicon"]["sha256"] != survey.lexicon.sha256:
         raise InputError("the coder was trained with another lexicon version; retrain with 'textkit train'",

@@ -9,18 +9,54 @@ from pathlib import Path
 
 import click
 
+from .main import OUTPUT_FOLDER
+
 #: Columns of ``coded`` that are never group variables.
 _NOT_GROUPS = {"question", "answered", "n_themes", "uncoded"}
 
 
-def _load(config: Path, quiet: bool, total: int):
+def _load(source: Path, quiet: bool, total: int):
+    """The coded survey from a config, or from a folder (or coded file) written by ``textkit code``.
+
+    A coded folder is traced back through its manifest to the config and lexicon it was coded
+    from (the texts live there); both must be unchanged since (same SHA-256), else the run stops.
+    """
     from ..pipeline import code_survey
     from .main import steps
 
+    config, lexicon = source, None
+    if source.suffix.lower() not in (".yaml", ".yml"):
+        config, lexicon, expected = _coded_origin(source)
     with steps(total, quiet) as progress:
-        survey = code_survey(config, progress=progress)
+        survey = code_survey(config, lexicon=lexicon, progress=progress)
         progress("counting terms")
+    if lexicon is not None:
+        _check_unchanged(source, survey, expected)
     return survey
+
+
+def _coded_origin(source: Path):
+    from ..errors import InputError
+    from ..pipeline import load_coded
+
+    _, manifest, data_path = load_coded(source)
+    config = Path(str((manifest.get("config") or {}).get("path", "")))
+    lexicon = Path(str((manifest.get("lexicon") or {}).get("path", "")))
+    for what, path in (("config", config), ("lexicon", lexicon)):
+        if not str(path) or not path.exists():
+            raise InputError(f"the coded table's manifest names the {what} '{path}', which is not there; run "
+                             "this command on the survey config instead", source=data_path.parent / "manifest.json")
+    return config, lexicon, manifest
+
+
+def _check_unchanged(source: Path, survey, expected: dict) -> None:
+    from ..errors import InputError
+
+    for what in ("survey", "lexicon"):
+        before = (expected.get(what) or {}).get("sha256")
+        if before and before != survey.manifest[what]["sha256"]:
+            raise InputError(f"the {what} changed since it was coded (SHA-256 differs from the manifest); "
+                             "code it again with 'textkit code' or pass the survey config", source=source)
 
 
 def _questions(survey, requested: tuple[str, ...]) -> list[str]:
@@ -46,7 +82,8 @@ def _group_variables(survey, requested: tuple[str, ...]) -> tuple[list[str], str
     roles = survey.roles
     wave = roles.get("wave")
     configured = list(dict.fromkeys([*roles.get("groups", []), *([wave] if wave else [])]))
-    allowed = [c for c in survey.coded.columns if c not in _NOT_GROUPS and c not in survey.themes]
+    allowed = [c for c in survey.coded.columns
+               if c not in _NOT_GROUPS and c not in survey.themes and not str(c).startswith("topic_")]
     for variable in requested:
         if variable not in allowed:
             listed = ", ".join(configured) or "none configured"
@@ -72,7 +109,7 @@ def _pairs(survey, by: list[str], pairs: tuple[tuple[str, str], ...]) -> list[tu
 
 @click.command("keyness")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for keyness.csv and manifest.json.")
 @click.option("--by", "by", multiple=True, metavar="GROUP_VAR",
               help="Group variable to compare (repeatable); default every group variable and the wave.")
@@ -104,6 +141,7 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
 
     Each group is compared with the rest of its variable, each wave with the one
     before, and each --pair; with --theme also within that theme's answers.
+    CONFIG is a survey config (YAML) or a folder written by 'textkit code'.
     """
     import numpy as np
     import pandas as pd
@@ -150,7 +188,8 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
     manifest = {"command": "keyness", "config": survey.manifest.get("config"),
                 "survey": survey.manifest.get("survey"), "lexicon": survey.manifest.get("lexicon"),
                 "settings": settings, "counts": {"rows": len(result), **summary}, "skipped": skipped}
-    paths = write_outputs(out_dir, {"keyness.csv": csv_writer(result, float_format="%.10g")}, manifest)
+    paths = write_outputs(out_dir, {"keyness.csv": csv_writer(result, float_format="%.10g")}, manifest,
+                          inputs=survey.input_paths)
     if quiet:
         return
     for note in skipped:
@@ -166,10 +205,13 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
 
 @click.command("suggest")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for lexicon-suggestions.yaml, suggestions.csv and manifest.json.")
 @click.option("--question", "questions", multiple=True, metavar="NAME",
-              help="Only answers to this question (repeatable); default every question.")
+              help="Only this question (repeatable); default every question.")
+@click.option("--by", "by", multiple=True, metavar="GROUP_VAR",
+              help="Variable whose last group is compared with the one before for emerging terms "
+                   "(default the wave; give one).")
 @click.option("--max-terms", type=click.IntRange(min=1), default=15, show_default=True,
               help="Candidate terms per existing theme.")
 @click.option("--max-new-terms", type=click.IntRange(min=1), default=40, show_default=True,
@@ -177,12 +219,16 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
 @click.option("--min-respondents", type=click.IntRange(min=1), default=5, show_default=True,
               help="Answers a term needs.")
 @click.option("--unweighted", is_flag=True, help="Ignore the survey weights.")
+@click.option("--topics", "with_topics", is_flag=True,
+              help="Also add NMF topics (default scope) to the draft as candidate themes.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max_terms: int,
-                    max_new_terms: int, min_respondents: int, unweighted: bool, quiet: bool) -> None:
+def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: tuple[str, ...],
+                    max_terms: int, max_new_terms: int, min_respondents: int, unweighted: bool,
+                    with_topics: bool, quiet: bool) -> None:
     """Draft lexicon additions from keyness of coded vs uncoded answers of CONFIG.
 
     Writes a commented YAML draft for review; the lexicon itself is never changed.
+    CONFIG is a survey config (YAML) or a folder written by 'textkit code'.
     """
     import numpy as np
     import scipy.sparse as sp
@@ -206,19 +252,30 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
         order = [list(coder.themes_).index(t) for t in themes]
         return found[:, order]
 
-    wave = survey.roles.get("wave")
+    from ..errors import AnalysisError
+
+    if len(by) > 1:
+        raise AnalysisError("suggest compares the last two groups of one variable: give --by once")
+    wave = _group_variables(survey, by)[0][0] if by else survey.roles.get("wave")
     table = suggest_terms(matrix, terms, n_words, survey.theme_matrix, themes, answered=answered,
                           weights=_weights(survey, unweighted), covered=covered,
                           waves=coded[wave].to_numpy() if wave else None, max_terms=max_terms,
                           max_new_terms=max_new_terms, min_respondents=min_respondents)
     labels = {theme.id: theme.label for theme in survey.lexicon.themes}
     draft = render_suggestions_yaml(table, labels=labels, source=str(config))
+    if with_topics:
+        from ..discover.topic_tables import render_topic_drafts
+        from ..pipeline import find_survey_topics
+
+        draft += "\n" + "\n".join(render_topic_drafts(find_survey_topics(survey, chosen))) + "\n"
     manifest = {"command": "suggest", "config": survey.manifest.get("config"),
                 "survey": survey.manifest.get("survey"), "lexicon": survey.manifest.get("lexicon"),
-                "settings": {"questions": chosen, "max_terms": max_terms, "max_new_terms": max_new_terms,
+                "settings": {"questions": chosen, "emerging_by": wave, "max_terms": max_terms,
+                             "max_new_terms": max_new_terms,
                              "min_respondents": min_respondents, "weighted": not unweighted}}
     paths = write_outputs(out_dir, {"lexicon-suggestions.yaml": text_writer(draft),
-                                    "suggestions.csv": csv_writer(table, float_format="%.10g")}, manifest)
+                                    "suggestions.csv": csv_writer(table, float_format="%.10g")}, manifest,
+                          inputs=survey.input_paths)
     if quiet:
         return
     n_terms = int((table["kind"] == "term").sum())
@@ -228,3 +285,75 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], max
                f"{n_emerging} emerging topics (from {int(answered.sum()):,} answers); nothing in the "
                "lexicon was changed")
     click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir} - review the draft before use")
+
+
+@click.command("topics")
+@click.argument("config", type=click.Path(path_type=Path))
+@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+              help="Folder for topics.csv, topic_summary.csv, topic_answers.csv, k_selection.csv, "
+                   "topic_examples.csv, topic-drafts.yaml and manifest.json.")
+@click.option("--question", "questions", multiple=True, metavar="NAME",
+              help="Only this question (repeatable); default every question.")
+@click.option("--by", "by", multiple=True, metavar="GROUP_VAR",
+              help="Group variables searched for where a topic is over-represented (repeatable); "
+                   "default every group variable and the wave.")
+@click.option("--scope", type=click.Choice(["unexplained", "uncoded", "all", "theme"]), default="unexplained",
+              show_default=True, help="Which text the topics are found in (see the README).")
+@click.option("--theme", default=None, metavar="THEME", help="With --scope theme: the theme whose answers.")
+@click.option("--k", "k", type=int, default=None, help="Number of topics (default: chosen by stability).")
+@click.option("--k-range", nargs=2, type=int, default=(3, 15), show_default=True, metavar="LOW HIGH",
+              help="Numbers of topics scanned when --k is not given.")
+@click.option("--min-df", type=click.IntRange(min=1), default=5, show_default=True,
+              help="Distinct answers a term must occur in.")
+@click.option("--max-df", type=click.FloatRange(min=0, max=1, min_open=True), default=0.2, show_default=True,
+              help="Largest share of the distinct answers a term may occur in.")
+@click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
+def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: tuple[str, ...], scope: str,
+                   theme: str | None, k: int | None, k_range: tuple[int, int], min_df: int, max_df: float,
+                   quiet: bool) -> None:
+    """Emerging topics (NMF) in what the lexicon leaves unexplained, as codes and draft themes.
+
+    CONFIG is a survey config (YAML) or a folder written by 'textkit code'.
+    """
+    import dataclasses
+
+    from ..discover.topic_tables import find_topics, render_topic_drafts
+    from ..io.output import csv_writer, text_writer, write_outputs
+    from ..pipeline import survey_text
+
+    survey = _load(config, quiet, 6)
+    chosen = _questions(survey, questions)
+    variables = _group_variables(survey, by)[0] if (by or survey.roles.get("groups")) else []
+    data = dataclasses.replace(survey_text(survey), groups=survey.coded[variables] if variables else None)
+    result = find_topics(data, chosen, scope=scope, theme=theme, n_topics=k, k_range=tuple(k_range),
+                         min_df=min_df, max_df=max_df, random_state=int(survey.config.seed or 0),
+                         language=survey.lexicon.language)
+    header = ["# DRAFT themes from textkit topics - review every line before use; nothing was added to",
+              f"# your lexicon. Source: {config}", "draft: true", ""]
+    draft = "\n".join(header + render_topic_drafts(result)) + "\n"
+    settings = {"questions": chosen, "scope": scope, "theme": theme, "by": variables, "k": k,
+                "k_range": list(k_range), "min_df": min_df, "max_df": max_df, "ngram_range": [1, 2],
+                "seed": int(survey.config.seed or 0), "loading_threshold": 0.5}
+    manifest = {"command": "topics", "config": survey.manifest.get("config"), "survey": survey.manifest.get("survey"),
+                "lexicon": survey.manifest.get("lexicon"), "settings": settings,
+                "counts": {**result.counts, "topics": len(result.topic_ids)},
+                "chosen_k": {q: m.n_topics_ for q, m in result.models.items()}}
+    fmt = "%.10g"
+    paths = write_outputs(out_dir, {
+        "topics.csv": csv_writer(result.terms, float_format=fmt),
+        "topic_summary.csv": csv_writer(result.summary, float_format=fmt),
+        "topic_answers.csv": csv_writer(result.answers, float_format=fmt),
+        "k_selection.csv": csv_writer(result.k_selection, float_format=fmt),
+        "topic_examples.csv": csv_writer(result.examples, float_format=fmt),
+        "topic-drafts.yaml": text_writer(draft)}, manifest)
+    if quiet:
+        return
+    for question, model in result.models.items():
+        how = "given" if k else f"chosen by stability {model.stability_:.2f}"
+        click.echo(f"{question}: {model.n_topics_} topics ({how}) from {model.n_answers_:,} answers "
+                   f"({model.n_empty_:,} empty after filtering skipped), {len(model.terms_):,} terms")
+    for row in result.summary.itertuples():
+        click.echo(f"  {row.topic} [{row.question}] {row.label}: {row.weighted_share:.1%} weighted, "
+                   f"most over-represented in {row.top_group_var}={row.top_group}")
+    click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir} - quotes are redacted, but read them "
+               "before publishing")

@@ -141,7 +141,7 @@ def mend_command(hand_codes: Path, config: Path, out_dir: Path, sheet: str | Non
     from ..io.output import csv_writer, file_sha256, text_writer, write_outputs
     from ..pipeline import code_survey, read_hand_codes_for
 
-    survey = code_survey(config, apply_corrections=False)
+    survey = code_survey(config, apply_corrections=False, missing_design="drop")
     hand, texts, place = read_hand_codes_for(survey, hand_codes, sheet=sheet, codes_column=codes_column,
                                              leave_out=leave_out)
     seed = survey.config.seed if seed is None else seed

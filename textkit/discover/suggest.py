@@ -44,6 +44,8 @@ def suggest_terms(
     alpha: float = 0.05,
     prior_strength: float = DEFAULT_PRIOR_STRENGTH,
     link: float = 0.2,
+    generic_share: float = 0.5,
+    exclude: np.ndarray | None = None,
 ) -> pd.DataFrame:
     """Candidate lexicon terms from keyness (nothing is changed anywhere).
 
@@ -91,6 +93,12 @@ def suggest_terms(
         See above.
     link : float, default 0.2
         Jaccard threshold that joins a term to a draft theme.
+    generic_share : float, default 0.5
+        A term key (z > 0, q <= alpha) for at least this share of the themes
+        (and for two or more) is generic - an evaluative word such as "good"
+        or "great" - and is proposed for none of them.
+    exclude : bool ndarray of shape (n_documents,), optional
+        Answers left out entirely (for instance "nothing to report" replies).
 
     Returns
     -------
@@ -113,6 +121,8 @@ def suggest_terms(
         raise AnalysisError(f"theme_matrix must have shape ({n_documents}, {len(themes)}), "
                             f"got {theme_matrix.shape}")
     answered = np.ones(n_documents, bool) if answered is None else np.asarray(answered, dtype=bool)
+    if exclude is not None:
+        answered = answered & ~np.asarray(exclude, dtype=bool)
     mats = _prepare(matrix, n_words, weights, True, True, None)
     in_scope = np.asarray(answered.astype(float) @ mats.binary).ravel()
     columns = np.flatnonzero(in_scope >= options.min_respondents)
@@ -137,6 +147,8 @@ def suggest_terms(
 
     frames = []
     coded = (theme_matrix != 0).tocsc()
+    per_theme = []
+    key_for = np.zeros(len(columns), dtype=np.int64)
     for t, theme in enumerate(themes):
         with_theme = np.zeros(n_documents, bool)
         with_theme[coded[:, t].indices] = True
@@ -144,7 +156,12 @@ def suggest_terms(
         counts = _class_sums(mats, classes, 2, columns)
         if counts.documents.min() == 0:
             continue
-        frame = ranked(counts, 0, 1, max_terms, ~known[:, t] & (counts.respondents[1] > 0))
+        per_theme.append((t, theme, counts))
+        key_for += _key_terms(counts, sub_terms, sub_words, options)
+    # a word key for half the themes or more ("good", "great") is specific to none of them
+    generic = key_for >= max(2.0, generic_share * len(per_theme))
+    for t, theme, counts in per_theme:
+        frame = ranked(counts, 0, 1, max_terms, ~known[:, t] & (counts.respondents[1] > 0) & ~generic)
         frames.append(frame.assign(kind="term", theme=theme))
 
     no_theme = np.diff(theme_matrix.indptr) == 0
@@ -171,6 +188,14 @@ def suggest_terms(
     if not frames:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in SUGGESTION_COLUMNS})
     return pd.concat(frames, ignore_index=True)[SUGGESTION_COLUMNS]
+
+
+def _key_terms(counts: _Counts, sub_terms: np.ndarray, sub_words: np.ndarray, options: _Options) -> np.ndarray:
+    """1 where a term is key (z > 0, q <= alpha) for class 0 against class 1, over ``sub_terms``."""
+    every = _Options(options.prior_strength, options.min_respondents, None, "z", options.alpha, "keep")
+    frame, _ = _score(sub_terms, sub_words, *_sides(counts, 0, 1), every, None)
+    key = frame.loc[(frame["z"] > 0) & (frame["q_value"] <= options.alpha), "term"].to_numpy(dtype=object)
+    return np.isin(sub_terms, key).astype(np.int64)
 
 
 def _draft_themes(frame: pd.DataFrame, binary: sp.csr_matrix, documents: np.ndarray, sub_terms: np.ndarray,
