@@ -461,6 +461,7 @@ def test_cli_keyness_and_suggest(tmp_path, capsys):
     assert "terms below 5 answers" in capsys.readouterr().out
     assert (out / "manifest.json").exists()
 
+    out = tmp_path / "suggest"  # a folder of its own: one command's result per folder
     assert main(["suggest", str(config), "--out", str(out), "--quiet"]) == 0
     draft = yaml.safe_load((out / "lexicon-suggestions.yaml").read_text(encoding="utf-8"))
     assert draft["draft"] is True

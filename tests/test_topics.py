@@ -214,8 +214,7 @@ def test_demo_emerging_subject_rises_between_waves(demo_topics):
     assert len(holders) >= 1
     roles = survey.roles
     coded = with_codes.coded
-    design = SurveyDesign.from_frame(coded, roles["weight"], roles["strata"], roles["cluster"], None, "error",
-                                     wave=roles["wave"], id="response_id", source="demo")
+    design = SurveyDesign.from_roles(coded, roles, id="response_id", source="demo")
     comparisons = analyse(coded, list(holders), design, groups=[], wave=roles["wave"],
                           id_column="response_id").comparisons()
     rise = comparisons[(comparisons["question"] == "low_point") & (comparisons["wave_a"].astype(str) == "2026")

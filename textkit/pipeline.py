@@ -93,6 +93,13 @@ class CodedSurvey:
         return [texts[r] if r >= 0 else None for r in rows.tolist()]
 
     @property
+    def input_paths(self) -> list[Path]:
+        """The files this survey was coded from (config, survey file, lexicon), for the writer to protect."""
+        paths = (self.config.path, self.config.survey, *(path for _, path in self.config.survey_waves),
+                 self.lexicon.source)
+        return [Path(p) for p in paths if p and not str(p).startswith("<")]
+
+    @property
     def theme_matrix(self) -> sp.csr_matrix:
         """(n_rows, n_themes) int8 0/1 theme matrix aligned with ``coded`` rows."""
         return self.result.matrix
@@ -126,7 +133,8 @@ def _no_progress(step: str) -> None:
 
 
 def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexicon | None = None,
-                progress: Callable[[str], None] | None = None, apply_corrections: bool = True) -> CodedSurvey:
+                progress: Callable[[str], None] | None = None, apply_corrections: bool = True,
+                missing_design: str = "refuse") -> CodedSurvey:
     """Read a survey and code every answer of every open question.
 
     Parameters
@@ -140,6 +148,10 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     apply_corrections : bool, default True
         Apply the corrections file the config names (see :func:`apply_configured_corrections`);
         False gives the lexicon's codes alone (to score or compare lexicons).
+    missing_design : {"refuse", "drop"}, default "refuse"
+        Weight or design columns the config names but the data lacks: refuse, or
+        code without them with a warning in ``notes`` (``textkit code`` does so;
+        the manifest keeps the config's roles, so ``textkit prevalence`` refuses).
 
     Raises
     ------
@@ -154,7 +166,7 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
             raise InputError("the config names no lexicon; add 'lexicon: <path>' or pass one",
                              source=config.path)
         lexicon = config.lexicon
-    data = read_survey(config)
+    data = read_survey(config, missing_design=missing_design)
     step("loading lexicon")
     lex = lexicon if isinstance(lexicon, Lexicon) else load_lexicon(lexicon)
 
@@ -185,16 +197,17 @@ def code_survey(config: str | Path | SurveyConfig, *, lexicon: str | Path | Lexi
     result = coder.code(stream, texts=text_list)
 
     step("assembling tables")
-    coded = _coded_table(frame, config, questions, answered, result)
+    coded = _coded_table(frame, data.config, questions, answered, result)
     corrections = None
     if apply_corrections and config.corrections is not None:
         coded, corrections = apply_configured_corrections(coded, result, lex, config)
     evidence = _evidence_table(coded, result)
-    coverage = _coverage_table(coded, lex, config, result)
+    coverage = _coverage_table(coded, lex, data.config, result)
     manifest = {
         "command": "code",
         "config": {"path": str(config.path), "sha256": file_sha256(config.path)},
-        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses},
+        "survey": {"path": str(config.survey), "sha256": data.source_sha256, "rows": n_responses,
+                   **({"wave_files": data.files} if data.files else {})},
         "lexicon": {"path": lex.source, "sha256": lex.sha256, "name": lex.name, "version": lex.version},
         "settings": {"negation_window": lex.negation_window, "seed": config.seed,
                      "non_answers": list(config.non_answers)},
@@ -350,8 +363,11 @@ def term_hit_table(survey: CodedSurvey, n_examples: int = 3) -> pd.DataFrame:
     return table[TERM_HIT_COLUMNS]
 
 
-def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
-    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically."""
+def write_coded(survey: CodedSurvey, out_dir: str | Path, inputs: tuple = ()) -> list[Path]:
+    """Write coded.csv, coded.parquet, evidence.csv, coverage.csv and manifest.json atomically.
+
+    The writer refuses an ``out_dir`` that would replace the survey's inputs or any of ``inputs``.
+    """
     files = {
         "coded.csv": csv_writer(survey.coded),
         "coded.parquet": parquet_writer(survey.coded),
@@ -359,7 +375,7 @@ def write_coded(survey: CodedSurvey, out_dir: str | Path) -> list[Path]:
         "coverage.csv": csv_writer(survey.coverage, float_format="%.6g"),
         **{name: csv_writer(table) for name, table in survey.extra_tables.items()},
     }
-    return write_outputs(out_dir, files, survey.manifest)
+    return write_outputs(out_dir, files, survey.manifest, inputs=[*survey.input_paths, *inputs])
 
 
 def load_coded(path: str | Path) -> tuple[pd.DataFrame, dict, Path]:
@@ -472,3 +488,481 @@ def with_topics(survey: CodedSurvey, topics) -> CodedSurvey:
     manifest["topics"] = {"scope": topics.scope, "counts": topics.counts,
                           "k": {q: m.n_topics_ for q, m in topics.models.items()}}
     return dataclasses.replace(survey, coded=coded, coverage=coverage, manifest=manifest)
+
+
+# ---------------------------------------------------------------------------
+# The report: every stage in one run (textkit report / textkit demo)
+# ---------------------------------------------------------------------------
+@dataclass
+class SurveyReport:
+    """Everything ``textkit report`` writes, in memory: ``files`` (relative name -> bytes) and the manifest."""
+
+    files: dict[str, bytes]
+    manifest: dict
+    timings: dict[str, float]
+    summaries: list = field(default_factory=list)
+
+
+class _Stages:
+    """Runs named stages, timing each and naming the stage in any error it raises."""
+
+    def __init__(self, progress: Callable[[str, float], None] | None) -> None:
+        self.progress = progress or (lambda name, seconds: None)
+        self.timings: dict[str, float] = {}
+
+    def run(self, name: str, function: Callable, *args, **kwargs):
+        import time
+
+        from .errors import TextkitError
+
+        started = time.perf_counter()
+        try:
+            value = function(*args, **kwargs)
+        except TextkitError as error:
+            raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
+                              row=error.row, column=error.column) from error
+        self.timings[name] = round(time.perf_counter() - started, 3)
+        self.progress(name, self.timings[name])
+        return value
+
+
+def summary_group_variables(config: SurveyConfig) -> list[str]:
+    """Group variables ``--summaries`` accepts: the config's ``groups``."""
+    return list(config.groups)
+
+
+def check_summary_variable(config: SurveyConfig, group_var: str | None) -> None:
+    """Refuse an unknown ``--summaries`` variable before any work, listing the valid ones."""
+    valid = summary_group_variables(config)
+    if group_var is not None and group_var not in valid:
+        raise InputError(f"--summaries: the config has no group variable '{group_var}'; valid ones: "
+                         f"{', '.join(valid) or 'none (add groups: to the config)'}", source=config.path)
+
+
+def _report_statistics(survey: CodedSurvey):
+    from .stats.design import SurveyDesign
+    from .stats.estimate import DEFAULT_METHOD, DEFAULT_RULE, analyse
+
+    roles = survey.roles
+    design = SurveyDesign.from_config(survey.config, survey.coded, id="response_id")
+    analysis = analyse(survey.coded, list(survey.themes), design, groups=list(roles.get("groups") or []),
+                       wave=roles.get("wave"), method=DEFAULT_METHOD, rule=DEFAULT_RULE)
+    facts = {"method": DEFAULT_METHOD, "rule": f"{DEFAULT_RULE.name} ({DEFAULT_RULE.origin})",
+             "design": f"{design.n_strata} strata, {design.n_psus} PSUs, {design.df} df"}
+    return analysis.prevalence(), analysis.comparisons(), analysis.group_tests(), facts
+
+
+def _report_keyness(survey: CodedSurvey, max_terms: int = 15) -> pd.DataFrame:
+    from .discover.keyness import KEYNESS_COLUMNS, compare
+    from .text.ngrams import document_term_matrix
+
+    roles = survey.roles
+    wave = roles.get("wave")
+    by = list(dict.fromkeys([*(roles.get("groups") or []), *([wave] if wave else [])]))
+    answered_rows = survey.coded[survey.coded["answered"] == 1]
+    by = [v for v in by if answered_rows[v].nunique() >= 2]  # one wave or one group: nothing to set apart
+    wave = wave if wave in by else None
+    if not by:
+        return pd.DataFrame(columns=KEYNESS_COLUMNS)
+    matrix, terms, n_words = document_term_matrix(survey.stream, binary=True)
+    weights = survey.coded[roles["weight"]].to_numpy(dtype=float) if roles.get("weight") else None
+    answered = survey.coded["answered"].to_numpy(dtype=bool)
+    tables = [compare(matrix, terms, n_words, survey.coded[by], weights=weights, by=by, wave=wave, question=q,
+                      answered=answered & (survey.coded["question"] == q).to_numpy(), max_terms=max_terms)
+              for q in survey.config.questions]
+    return pd.concat(tables, ignore_index=True)[KEYNESS_COLUMNS]
+
+
+def _report_agreement(survey: CodedSurvey, hand_coded: Path) -> pd.DataFrame:
+    from .coding.agreement import compare_with_hand_codes
+    from .io.readers import read_table
+
+    frame, _ = read_table(hand_coded)
+    for column in ("text", "themes"):
+        if column not in frame.columns:
+            raise InputError(f"the hand-coded sample needs columns 'text' and 'themes'; found: "
+                             f"{', '.join(map(str, frame.columns))}", source=hand_coded, column=column)
+    table, _ = compare_with_hand_codes(frame["text"].tolist(), frame["themes"].tolist(), survey.lexicon,
+                                       source=str(hand_coded))
+    return table
+
+
+def _frame_csv(frame: pd.DataFrame) -> bytes:
+    from .io.export import neutralise_frame
+
+    return neutralise_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
+
+
+def _missing_pieces() -> dict[str, str]:
+    """Pieces the report does not include in this build, with the reason the report gives.
+
+    Charts, word clouds and quotes (``textkit.present.charts``/``clouds``/``quotes``) and topics
+    (``textkit.discover.topics``) are not yet assembled into the report, whether or not their
+    modules are installed; the report says so instead of leaving a stand-in.
+    """
+    import importlib.util
+
+    wanted = {"topics": ("textkit.discover.topics", "topics"),
+              "charts": ("textkit.present.charts", "charts and word clouds"),
+              "quotes": ("textkit.present.quotes", "the quote picker")}
+    missing = {}
+    for name, (module, what) in wanted.items():
+        present = importlib.util.find_spec(module) is not None
+        missing[name] = (f"{what.capitalize()} exist in this package but are not yet assembled into the report."
+                         if present else f"{what.capitalize()} are not in this build.")
+    return missing
+
+
+def _report_files(inputs, summaries: list) -> dict[str, bytes]:
+    from .io.export import workbook_bytes
+    from .present.report import PERCENT_COLUMNS, column_notes, render_report, report_tables
+    from .present.summary import file_stems, summary_html, summary_pdf
+
+    tables = report_tables(inputs)
+    files = {"index.html": render_report(inputs).encode("utf-8"),
+             "tables.xlsx": workbook_bytes(tables, column_notes(tables), PERCENT_COLUMNS)}
+    files.update({f"{name}.csv": _frame_csv(frame) for name, frame in tables.items()})
+    if inputs.quotes is not None:
+        files["quotes.csv"] = _frame_csv(inputs.quotes)
+    for figure in inputs.figures:
+        files[f"charts/{figure.name}.svg"] = figure.svg
+        if figure.png:
+            files[f"charts/{figure.name}.png"] = figure.png
+    stems = file_stems([s.group for s in summaries])
+    for summary in summaries:
+        files[f"summaries/{stems[summary.group]}.pdf"] = summary_pdf(summary)
+        files[f"summaries/{stems[summary.group]}.html"] = summary_html(summary).encode("utf-8")
+    return files
+
+
+def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = None,
+                 hand_coded: str | Path | None = None,
+                 progress: Callable[[str, float], None] | None = None) -> SurveyReport:
+    """Run every stage (code, topics, statistics, keyness, agreement, charts, quotes, report, summaries).
+
+    Parameters
+    ----------
+    config : path or SurveyConfig
+    summaries : str, optional
+        A group variable of the config: one one-page summary per group.
+    hand_coded : path, optional
+        A hand-coded sample (columns ``text`` and ``themes``) for the agreement figures.
+    progress : callable(stage, seconds), optional
+        Called after each stage.
+
+    Raises
+    ------
+    TextkitError
+        Naming the stage; an unknown ``summaries`` variable is refused before any work.
+    """
+    from .io.output import library_versions
+    from .present.report import ReportInputs, waves_of
+    from .present.summary import group_summaries
+
+    config = config if isinstance(config, SurveyConfig) else load_config(config)
+    check_summary_variable(config, summaries)
+    stages = _Stages(progress)
+    survey = stages.run("code", code_survey, config)
+    missing = _missing_pieces()
+    prevalence, comparisons, tests, facts = stages.run("statistics", _report_statistics, survey)
+    keyness = stages.run("keyness", _report_keyness, survey)
+    agreement = None if hand_coded is None else stages.run("agreement", _report_agreement, survey, Path(hand_coded))
+    labels = {theme.id: theme.label for theme in survey.lexicon.themes}
+    manifest = survey.manifest
+    facts.update({"responses": manifest["counts"]["responses"], "answers": manifest["counts"]["answered"],
+                  "waves": waves_of(prevalence), "weighted": bool(config.weight), "lexicon": survey.lexicon.name,
+                  "lexicon_sha256": survey.lexicon.sha256, "survey": Path(config.survey).name,
+                  "survey_sha256": manifest["survey"]["sha256"], "version": library_versions(("textkit",))
+                  .get("textkit", "")})
+    inputs = ReportInputs(title=f"Survey report: {Path(config.path).name}", questions=list(config.questions),
+                          prevalence=prevalence, comparisons=comparisons, group_tests=tests, labels=labels,
+                          keyness=keyness, agreement=agreement,
+                          agreement_source=Path(hand_coded).name if hand_coded else "", missing=missing, facts=facts)
+    pages = [] if summaries is None else stages.run(
+        "summaries", group_summaries, prevalence, comparisons, summaries, labels, list(config.questions),
+        quotes=inputs.quotes, survey_title=inputs.title)
+    files = stages.run("report", _report_files, inputs, pages)
+    report_manifest = {
+        "command": "report", "config": manifest["config"], "survey": manifest["survey"],
+        "lexicon": manifest["lexicon"], "roles": manifest["roles"], "notes": manifest["notes"],
+        "hand_coded": None if hand_coded is None else {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
+        "settings": {"seed": config.seed, "summaries": summaries, "method": facts["method"], "rule": facts["rule"],
+                     "fdr_level": 0.05, "keyness_max_terms": 15},
+        "not_available": missing, "timings_seconds": stages.timings,
+        "versions": library_versions(("textkit", "numpy", "scipy", "pandas", "scikit-learn", "nltk", "statsmodels",
+                                      "matplotlib", "jinja2", "openpyxl", "wordcloud")),
+    }
+    return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages)
+
+
+def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
+    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none."""
+    from .io.export import bytes_writer, write_tree
+
+    return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
+                      report.manifest)
+
+
+# --------------------------------------------------------------------------- the learned coder
+
+#: Marks a joblib file as a textkit learned coder (and its layout version).
+CODER_FORMAT = "textkit learned coder 1"
+
+
+@dataclass(frozen=True, eq=False)
+class TrainedCoder:
+    """A :class:`~textkit.coding.learned.LearnedCoder` with its training manifest.
+
+    ``manifest``: hand-code file hash, lexicon hash, settings, seed, library versions.
+    """
+
+    coder: object
+    manifest: dict
+
+    @property
+    def report(self) -> pd.DataFrame:
+        return self.coder.report_
+
+
+def read_hand_codes_for(survey: CodedSurvey, path: str | Path, *, sheet: str | None = None,
+                        codes_column: str = "themes", text_column: str = "text", leave_out: tuple[str, ...] = ()):
+    """Hand codes of ``path`` checked against ``survey`` (ids, themes); several coders -> their majority.
+
+    Returns ``(hand, texts, place)``. Themes the lexicon lacks are refused in one line unless
+    named in ``leave_out``.
+    """
+    from .coding.agreement import consensus
+    from .coding.handcodes import HandCodes, check_ids_in_survey, hand_codes_from_frame
+    from .coding.learned import check_hand_themes
+    from .io.workbook import read_coding_file
+
+    part = read_coding_file(path, sheets=[sheet] if sheet else ())[0]
+    hand = hand_codes_from_frame(part.frame, survey.lexicon, part.place, codes_column=codes_column,
+                                 text_column=text_column)
+    unknown = [t for t in leave_out if t not in hand.themes or t in survey.lexicon.ids]
+    if unknown:
+        raise InputError(f"--leave-out {unknown[0]}: only themes the hand codes hold and the lexicon lacks can be "
+                         "left out", source=part.place)
+    keep = [i for i, t in enumerate(hand.themes) if t not in leave_out]
+    hand = HandCodes(keys=hand.keys, values=hand.values[:, keep], themes=tuple(hand.themes[i] for i in keep),
+                     in_lexicon=tuple(hand.in_lexicon[i] for i in keep), weights=hand.weights, texts=hand.texts,
+                     source=hand.source)
+    check_hand_themes(hand.themes, hand.in_lexicon, hand.values, part.place)
+    check_ids_in_survey(hand, survey.coded, part.place)
+    if len(hand.coders) > 1:
+        hand = consensus(hand)
+    return hand, survey.text_lookup(hand.keys), part.place
+
+
+def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sheet: str | None = None,
+                codes_column: str = "themes", text_column: str = "text", leave_out: tuple[str, ...] = (),
+                seed: int | None = None, progress: Callable[[str], None] | None = None,
+                **settings) -> TrainedCoder:
+    """Train a learned coder on the hand codes of a survey's answers (what ``textkit train`` runs).
+
+    ``settings`` go to :class:`~textkit.coding.learned.LearnedCoder` (``kind``, ``C``, ``min_df``,
+    ``min_positive``, ``folds``, ``lexicon_features``); ``seed`` defaults to the config's seed.
+    """
+    from .coding.learned import LearnedCoder
+    from .io.output import library_versions
+
+    step = progress or _no_progress
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
+    step("training")
+    hand, texts, place = read_hand_codes_for(survey, hand_codes, sheet=sheet, codes_column=codes_column,
+                                            text_column=text_column, leave_out=leave_out)
+    seed = survey.config.seed if seed is None else seed
+    lexicon = survey.lexicon
+    n_lexicon = len(lexicon.ids)
+    coder = LearnedCoder(lexicon, random_state=int(seed or 0), **settings).fit(texts, hand.values[:, :n_lexicon])
+    params = {k: v for k, v in coder.get_params().items() if k != "lexicon"}
+    manifest = {
+        "format": CODER_FORMAT,
+        "hand_codes": {"path": str(hand_codes), "sha256": file_sha256(hand_codes), "place": place,
+                       "answers": len(hand.keys), "coders": hand.coders},
+        "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256, "name": lexicon.name,
+                    "version": lexicon.version},
+        "survey_config": {"path": str(survey.config.path), "sha256": file_sha256(survey.config.path)},
+        "settings": params, "seed": int(seed or 0), "versions": library_versions(),
+        "themes_with_model": [t for t, m in zip(coder.themes_, coder.models_, strict=True) if m is not None],
+        "combined": dict(zip(coder.themes_, coder.combined_, strict=True)),
+        "notes": list(coder.notes_),
+    }
+    return TrainedCoder(coder=coder, manifest=manifest)
+
+
+def coder_writer(trained: TrainedCoder):
+    """Writer (for :func:`textkit.io.output.write_outputs`) of the joblib file holding coder and manifest."""
+    import joblib
+
+    payload = {"format": CODER_FORMAT, "manifest": trained.manifest, "coder": trained.coder}
+    return lambda path: joblib.dump(payload, path, compress=3)
+
+
+def load_trained_coder(path: str | Path, lexicon: Lexicon | None = None) -> TrainedCoder:
+    """Read a coder saved by ``textkit train``; refuse it for another lexicon than the one it was trained with.
+
+    Loading runs pickled code: open only coder files you made or trust.
+    """
+    import joblib
+
+    source = Path(path)
+    if not source.exists():
+        raise InputError("no such coder file (write one with 'textkit train')", source=source)
+    try:
+        payload = joblib.load(source)
+    except Exception as error:  # a truncated or foreign file: any unpickling error
+        raise InputError(f"not a readable coder file ({type(error).__name__}); write one with 'textkit train'",
+                         source=source) from error
+    if not isinstance(payload, dict) or payload.get("format") != CODER_FORMAT:
+        raise InputError(f"not a textkit coder file (expected format '{CODER_FORMAT}')", source=source)
+    trained = TrainedCoder(coder=payload["coder"], manifest=payload["manifest"])
+    wanted = trained.manifest["lexicon"]
+    if lexicon is not None and lexicon.sha256 != wanted["sha256"]:
+        raise InputError(f"the coder was trained with lexicon '{wanted['name']}' version '{wanted['version']}' "
+                         f"(sha256 {wanted['sha256'][:12]}), but the survey uses '{lexicon.name}' version "
+                         f"'{lexicon.version}' (sha256 {lexicon.sha256[:12]}); retrain with 'textkit train'",
+                         source=source)
+    return trained
+
+
+def code_survey_with_coder(config: str | Path | SurveyConfig, coder: str | Path | TrainedCoder, *,
+                           mode: str = "combined", progress: Callable[[str], None] | None = None) -> CodedSurvey:
+    """Code a survey with a learned coder (``mode``: lexicon, model or combined), then apply corrections.
+
+    ``coded`` gains ``source`` (``lexicon``, ``model`` where the model changed a code of the
+    row, ``correction``), ``model_added`` and ``model_removed`` (themes the model set or
+    cleared against the lexicon); ``model_evidence.csv`` lists each model code with its
+    score and the features that pushed it most.
+    """
+    step = progress or _no_progress
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
+    trained = coder if isinstance(coder, TrainedCoder) else load_trained_coder(coder, survey.lexicon)
+    if trained.manifest["lexicon"]["sha256"] != survey.lexicon.sha256:
+        raise InputError("the coder was trained with another lexicon version; retrain with 'textkit train'",
+                         source=str(coder) if not isinstance(coder, TrainedCoder) else None)
+    step("coding with the model")
+    learned = trained.coder.code(survey.stream, mode=mode, lexicon_matrix=survey.result.matrix)
+    themes = list(survey.themes)
+    answered = survey.coded["answered"].to_numpy(dtype=bool)
+    final = learned.matrix.toarray().astype(np.int8) * answered[:, None].astype(np.int8)
+    lexicon_codes = survey.coded[themes].to_numpy(dtype=np.int8)
+    coded = survey.coded.copy()
+    for index, theme in enumerate(themes):
+        coded[theme] = final[:, index]
+    coded["n_themes"] = (learned.own & answered[:, None]).sum(axis=1).astype(np.int16)
+    coded["uncoded"] = (answered & (final.sum(axis=1) == 0)).astype(np.int8)
+    names = np.asarray(themes, dtype=object)
+    added, removed = (final > lexicon_codes), (final < lexicon_codes)
+    coded["model_added"] = [";".join(names[row]) for row in added]
+    coded["model_removed"] = [";".join(names[row]) for row in removed]
+    tables: dict = {}
+    notes = list(survey.notes)
+    manifest = dict(survey.manifest)
+    if survey.config.corrections is not None:
+        coded, corrections = apply_configured_corrections(coded, survey.result, survey.lexicon, survey.config)
+        tables.update(corrections["tables"])
+        notes += corrections["notes"]
+        manifest["corrections"] = corrections["manifest"]
+    changed = added.any(axis=1) | removed.any(axis=1)
+    source = coded["source"].to_numpy(dtype=object) if "source" in coded else np.full(len(coded), "lexicon", object)
+    coded["source"] = np.where(source == "correction", "correction", np.where(changed, "model", "lexicon"))
+    tables["model_evidence.csv"] = _model_evidence(trained.coder, learned, coded, final, answered)
+    decided = dict(zip(themes, learned.decided_by, strict=True))
+    manifest["coder"] = {"path": None if isinstance(coder, TrainedCoder) else str(coder),
+                         "sha256": None if isinstance(coder, TrainedCoder) else file_sha256(coder),
+                         "mode": mode, "decided_by": decided, "training": trained.manifest,
+                         "codes_changed_by_model": {"added": int(added.sum()), "removed": int(removed.sum())}}
+    notes.append(f"learned coder ({mode}): the model decides {sum(v != 'lexicon' for v in decided.values())} of "
+                 f"{len(themes)} themes; it added {int(added.sum())} and removed {int(removed.sum())} codes")
+    return CodedSurvey(coded=coded, texts=survey.texts, evidence=survey.evidence,
+                       coverage=_coverage_table(coded, survey.lexicon, survey.config), lexicon=survey.lexicon,
+                       config=survey.config, result=survey.result, notes=notes, manifest=manifest,
+                       extra_tables=tables)
+
+
+def _model_evidence(coder, learned, coded: pd.DataFrame, final: np.ndarray, answered: np.ndarray) -> pd.DataFrame:
+    """One row per code the model made (theme decided by model or union, model score >= 0, code kept)."""
+    frames = []
+    for index, theme in enumerate(learned.themes):
+        if learned.decided_by[index] == "lexicon":
+            continue
+        rows = np.flatnonzero((learned.scores[:, index] >= 0) & answered & (final[:, index] == 1))
+        frames.append(pd.DataFrame({
+            "response_id": coded["response_id"].to_numpy()[rows], "question": coded["question"].to_numpy()[rows],
+            "theme": theme, "score": np.round(learned.scores[rows, index], 4),
+            "top_features": coder.top_features(learned.features_of(rows), np.arange(len(rows)), theme)}))
+    columns = ["response_id", "question", "theme", "score", "top_features"]
+    return pd.concat(frames, ignore_index=True)[columns] if frames else pd.DataFrame(columns=columns)
+
+
+# --------------------------------------------------------------------------- prevalence and the coder's error
+
+#: Columns of the coder-corrected prevalence table.
+CODER_CORRECTED_COLUMNS = ["question", "theme", "group_var", "group", "wave", "n", "estimate", "se", "ci_low",
+                           "ci_high", "flag", "corrected_estimate", "corrected_se", "corrected_ci_low",
+                           "corrected_ci_high", "sensitivity", "specificity", "hand_positive", "hand_negative",
+                           "correction_note"]
+
+
+def coder_error_table(coded: pd.DataFrame, themes: list[str], hand_path: str | Path, lexicon: Lexicon, *,
+                      sheet: str | None = None, codes_column: str = "themes") -> pd.DataFrame:
+    """Per theme: the coded table's codes against hand codes of some of its answers.
+
+    Counts ``true_positive, false_negative, true_negative, false_positive`` over the hand-coded
+    answers that were answered (both questions pooled; several coders: their majority;
+    blank cells left out), with sensitivity and specificity.
+    """
+    from .coding.agreement import consensus
+    from .coding.handcodes import check_ids_in_survey, hand_codes_from_frame
+    from .io.workbook import read_coding_file
+
+    part = read_coding_file(hand_path, sheets=[sheet] if sheet else ())[0]
+    hand = hand_codes_from_frame(part.frame, lexicon, part.place, codes_column=codes_column)
+    check_ids_in_survey(hand, coded, part.place)
+    if len(hand.coders) > 1:
+        hand = consensus(hand)
+    index = pd.MultiIndex.from_arrays([coded["response_id"].astype(str), coded["question"].astype(str)])
+    rows = index.get_indexer(pd.MultiIndex.from_frame(hand.keys[["response_id", "question"]]))
+    answered = coded["answered"].to_numpy(dtype=bool)[rows]
+    records = []
+    for theme in themes:
+        if theme not in hand.themes:
+            continue
+        truth = hand.values[answered, hand.themes.index(theme)]
+        machine = coded[theme].to_numpy()[rows][answered]
+        known = np.isfinite(truth)
+        truth, machine = truth[known] == 1, machine[known] == 1
+        counts = {"true_positive": int((truth & machine).sum()), "false_negative": int((truth & ~machine).sum()),
+                  "true_negative": int((~truth & ~machine).sum()), "false_positive": int((~truth & machine).sum())}
+        records.append({"theme": theme, **counts})
+    table = pd.DataFrame(records, columns=["theme", "true_positive", "false_negative", "true_negative",
+                                           "false_positive"])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["sensitivity"] = table["true_positive"] / (table["true_positive"] + table["false_negative"])
+        table["specificity"] = table["true_negative"] / (table["true_negative"] + table["false_positive"])
+    return table
+
+
+def correct_prevalence_for_coder(prevalence_table: pd.DataFrame, error: pd.DataFrame, *,
+                                 confidence: float = 0.95) -> pd.DataFrame:
+    """Rogan-Gladen corrected prevalence beside each raw row (:data:`CODER_CORRECTED_COLUMNS`).
+
+    Every theme row of ``prevalence_table`` (nets are left out) with the theme's
+    sensitivity and specificity from ``error`` (:func:`coder_error_table`); the interval
+    carries the survey's variance (``se``) and the hand-coded sample's.
+    """
+    from .stats.misclassification import rogan_gladen
+
+    rows = prevalence_table[prevalence_table["theme"].isin(error["theme"])].reset_index(drop=True)
+    counts = error.set_index("theme").loc[rows["theme"]]
+    result = rogan_gladen(rows["estimate"].to_numpy(float), rows["se"].to_numpy(float) ** 2,
+                          counts["true_positive"], counts["false_negative"], counts["true_negative"],
+                          counts["false_positive"], confidence=confidence)
+    out = rows.assign(corrected_estimate=result.estimate, corrected_se=result.se, corrected_ci_low=result.ci_low,
+                      corrected_ci_high=result.ci_high, sensitivity=result.sensitivity,
+                      specificity=result.specificity,
+                      hand_positive=(counts["true_positive"] + counts["false_negative"]).to_numpy(),
+                      hand_negative=(counts["true_negative"] + counts["false_positive"]).to_numpy(),
+                      correction_note=result.reason)
+    return out[[c for c in CODER_CORRECTED_COLUMNS if c in out.columns]]

@@ -9,34 +9,46 @@ from pathlib import Path
 
 import click
 
-from .main import steps
+from .main import OUTPUT_FOLDER, SuggestingGroup, steps
 from .review import lexicon_diff_command
 
 
 @click.command("code")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for coded.csv, coded.parquet, evidence.csv, coverage.csv, manifest.json.")
 @click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
               help="Use this lexicon instead of the one the config names.")
 @click.option("--topics", "topics", is_flag=True,
               help="Also add NMF topic columns (topic_01 ...) found in what the lexicon leaves unexplained.")
+@click.option("--coder", "coder_path", type=click.Path(path_type=Path), default=None,
+              help="A coder written by 'textkit train': code with it (see --mode).")
+@click.option("--mode", type=click.Choice(["combined", "model", "lexicon"]), default="combined", show_default=True,
+              help="With --coder: per theme the better of lexicon, model or their union (combined), the model "
+                   "wherever it has one, or the lexicon alone.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics: bool, quiet: bool) -> None:
-    """Code every answer of the survey described by CONFIG with its theme lexicon."""
+def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics: bool, coder_path: Path | None,
+                 mode: str, quiet: bool) -> None:
+    """Code every answer of the survey described by CONFIG with its theme lexicon (or a trained coder)."""
     from ..pipeline import code_survey, find_survey_topics, with_topics, write_coded
 
     with steps(7 if topics else 6, quiet) as progress:
-        survey = code_survey(config, lexicon=lexicon_path, progress=progress)
+        # coding uses no weight or design column: one the data lacks is a warning here
+        survey = (code_survey(config, lexicon=lexicon_path, progress=progress, missing_design="drop")
+                  if coder_path is None else _code_with_coder(config, lexicon_path, coder_path, mode, progress))
         if topics:
             progress("finding topics")
             survey = with_topics(survey, find_survey_topics(survey))
         progress("writing")
         paths = write_coded(survey, out_dir)
+    for note in survey.notes:
+        if note.startswith("warning: "):
+            click.echo(note, err=True)
     if quiet:
         return
     for note in survey.notes:
-        click.echo(f"note: {note}", err=True)
+        if not note.startswith("warning: "):
+            click.echo(f"note: {note}", err=True)
     counts = survey.manifest["counts"]
     click.echo(f"coded {counts['rows']:,} answers ({counts['responses']:,} responses x "
                f"{len(survey.config.questions)} questions; {counts['answered']:,} answered) "
@@ -54,7 +66,17 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics:
                "sample before reporting.")
 
 
-@click.group("lexicon")
+def _code_with_coder(config: Path, lexicon_path: Path | None, coder_path: Path, mode: str, progress):
+    from ..errors import InputError
+    from ..pipeline import code_survey_with_coder
+
+    if lexicon_path is not None:
+        raise InputError("--lexicon and --coder cannot be combined: a coder is tied to the lexicon it was "
+                         "trained with", column="--coder")
+    return code_survey_with_coder(config, coder_path, mode=mode, progress=progress)
+
+
+@click.group("lexicon", cls=SuggestingGroup)
 def lexicon_group() -> None:
     """Check and inspect theme lexicons."""
 
@@ -119,7 +141,7 @@ def lexicon_check_command(lexicon: Path, config: Path | None, out_dir: Path | No
               help="The lexicon to check (default: the one the --survey config names).")
 @click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
               help="Survey config: check every hand-coded id is in it and take the answers' text from it.")
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for agreement.csv, disagreements.csv (and coder_alpha.csv, coder_pairs.csv).")
 @click.option("--sheet", default=None, help="Workbook sheet holding the codes (default: the first).")
 @click.option("--text-column", default="text", show_default=True, help="Column holding the answers.")
@@ -142,11 +164,13 @@ def agreement_command(hand_coded: Path, lexicon_path: Path | None, config: Path 
     from ..coding.lexicon import load_lexicon
     from ..errors import InputError
     from ..io.output import csv_writer, file_sha256, write_outputs
+    from ..io.readers import check_hand_code_ids
     from ..io.workbook import read_coding_file
 
     if lexicon_path is None and config is None:
         raise InputError("give --lexicon or --survey (whose config names the lexicon)", column="--lexicon")
     part = read_coding_file(hand_coded, sheets=[sheet] if sheet else ())[0]
+    check_hand_code_ids(part.frame, codes_column, part.place)
     texts = None
     if config is not None:
         from ..pipeline import code_survey
@@ -175,7 +199,7 @@ def agreement_command(hand_coded: Path, lexicon_path: Path | None, config: Path 
                 "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256},
                 "settings": {"resamples": resamples, "seed": seed}, "coders": report.coders,
                 "notes": report.notes}
-    write_outputs(out_dir, files, manifest)
+    write_outputs(out_dir, files, manifest, inputs=[hand_coded, lexicon_path, config, lexicon.source])
     if quiet:
         return
     for note in report.notes:

@@ -9,6 +9,8 @@ from pathlib import Path
 
 import click
 
+from .main import OUTPUT_FOLDER
+
 #: Columns of ``coded`` that are never group variables.
 _NOT_GROUPS = {"question", "answered", "n_themes", "nothing_to_report", "uncoded"}
 
@@ -107,7 +109,7 @@ def _pairs(survey, by: list[str], pairs: tuple[tuple[str, str], ...]) -> list[tu
 
 @click.command("keyness")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for keyness.csv and manifest.json.")
 @click.option("--by", "by", multiple=True, metavar="GROUP_VAR",
               help="Group variable to compare (repeatable); default every group variable and the wave.")
@@ -186,7 +188,8 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
     manifest = {"command": "keyness", "config": survey.manifest.get("config"),
                 "survey": survey.manifest.get("survey"), "lexicon": survey.manifest.get("lexicon"),
                 "settings": settings, "counts": {"rows": len(result), **summary}, "skipped": skipped}
-    paths = write_outputs(out_dir, {"keyness.csv": csv_writer(result, float_format="%.10g")}, manifest)
+    paths = write_outputs(out_dir, {"keyness.csv": csv_writer(result, float_format="%.10g")}, manifest,
+                          inputs=survey.input_paths)
     if quiet:
         return
     for note in skipped:
@@ -202,7 +205,7 @@ def keyness_command(config: Path, out_dir: Path, by: tuple[str, ...], questions:
 
 @click.command("suggest")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for lexicon-suggestions.yaml, suggestions.csv and manifest.json.")
 @click.option("--question", "questions", multiple=True, metavar="NAME",
               help="Only this question (repeatable); default every question.")
@@ -272,7 +275,8 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by:
                              "max_new_terms": max_new_terms,
                              "min_respondents": min_respondents, "weighted": not unweighted}}
     paths = write_outputs(out_dir, {"lexicon-suggestions.yaml": text_writer(draft),
-                                    "suggestions.csv": csv_writer(table, float_format="%.10g")}, manifest)
+                                    "suggestions.csv": csv_writer(table, float_format="%.10g")}, manifest,
+                          inputs=survey.input_paths)
     if quiet:
         return
     n_terms = int((table["kind"] == "term").sum())

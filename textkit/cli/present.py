@@ -10,6 +10,8 @@ from pathlib import Path
 
 import click
 
+from .main import OUTPUT_FOLDER
+
 
 def _wording(pairs: tuple[str, ...]) -> dict[str, str]:
     from ..errors import InputError
@@ -25,7 +27,7 @@ def _wording(pairs: tuple[str, ...]) -> dict[str, str]:
 
 @click.command("charts")
 @click.argument("results_dirs", nargs=-1, required=True, type=click.Path(path_type=Path), metavar="RESULTS_DIR...")
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for the charts (PNG and SVG) and manifest.json.")
 @click.option("--group-var", default=None, help="Only this group variable.")
 @click.option("--theme", default=None, help="Only this theme (differences become every pair of groups).")
@@ -76,7 +78,7 @@ def charts_command(results_dirs: tuple[Path, ...], out_dir: Path, group_var: str
         "charts": [{"file": spec.stem, "kind": spec.kind, **{k: v for k, v in spec.arguments.items() if v}}
                    for spec in specs],
     }
-    write_outputs(out_dir, files, manifest)
+    write_outputs(out_dir, files, manifest, inputs=[*results_dirs, *results.paths.values()])
     if not quiet:
         click.echo(f"{len(specs)} charts ({len(files)} files) -> {out_dir}")
         if missing:
@@ -86,7 +88,7 @@ def charts_command(results_dirs: tuple[Path, ...], out_dir: Path, group_var: str
 
 @click.command("quotes")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for quotes.csv, quotes.md and manifest.json.")
 @click.option("--theme", "themes", multiple=True, help="Only this theme (repeatable; default all).")
 @click.option("--group-var", default=None, help="Pick quotes within each group of this variable.")
@@ -143,7 +145,7 @@ def quotes_command(config: Path, out_dir: Path, themes: tuple[str, ...], group_v
         "counts": {"quotes": len(quotes), "redactions": int(quotes["redactions"].sum())},
     }
     write_outputs(out_dir, {"quotes.csv": csv_writer(quotes), "quotes.md": text_writer(quotes_markdown(quotes))},
-                  manifest)
+                  manifest, inputs=survey.input_paths)
     if not quiet:
         click.echo(f"{len(quotes)} quotes ({int(quotes['redactions'].sum())} redactions) -> {out_dir}")
         click.echo("caution: quotes can identify respondents; read every quote before publishing", err=True)

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import click
 
-from .main import steps
+from .main import OUTPUT_FOLDER, steps
 
 _WORKBOOK_NOTE = ("caution: the workbook shows answer text (contact details redacted); keep it within the "
                   "people allowed to read the answers.")
@@ -155,7 +155,7 @@ def sample_command(config: Path, size: int, out_path: Path, strata: tuple[str, .
 @click.argument("new_lexicon", type=click.Path(path_type=Path))
 @click.option("--survey", "config", required=True, type=click.Path(path_type=Path),
               help="The survey to code with both lexicons.")
-@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
+@click.option("--out", "out_dir", type=OUTPUT_FOLDER, default=None,
               help="Folder for lexicon_diff.csv and lexicon_diff_examples.csv (default: print only).")
 @click.option("--examples", default=5, show_default=True, type=click.IntRange(0, 1000),
               help="Gained and lost answers shown per theme.")
@@ -180,7 +180,8 @@ def lexicon_diff_command(old_lexicon: Path, new_lexicon: Path, config: Path, out
                     "old_lexicon": {"path": old.source, "sha256": old.sha256},
                     "new_lexicon": {"path": new.source, "sha256": new.sha256}, "seed": survey.config.seed}
         write_outputs(out_dir, {"lexicon_diff.csv": csv_writer(summary, float_format="%.6g"),
-                                "lexicon_diff_examples.csv": csv_writer(shown)}, manifest)
+                                "lexicon_diff_examples.csv": csv_writer(shown)}, manifest,
+                      inputs=[config, old.source, new.source, *survey.input_paths])
     moved = summary[(summary["gained"] > 0) | (summary["lost"] > 0) | (summary["status"] != "")]
     pooled = moved[moved["wave"] == "(all)"] if (moved["wave"] == "(all)").any() else moved
     if pooled.empty:

@@ -52,6 +52,7 @@ from typing import TYPE_CHECKING
 import yaml
 
 from ..errors import LexiconError
+from ..io.yaml_files import BoundedLoader, read_yaml_bytes
 from ..text.inflect import ACCENTS_KEPT_BY_DEFAULT, SUPPORTED_LANGUAGES, base_language
 from ..text.tokens import normalise, word_tokens
 
@@ -280,7 +281,7 @@ def load_lexicon(path: str | Path) -> Lexicon:
     """
     source = str(path)
     try:
-        data = Path(path).read_bytes()
+        data = read_yaml_bytes(path, "lexicon", error=LexiconError)
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
         raise _raise_problems([(None, f"cannot read the lexicon file ({reason})")], source) from None
@@ -315,7 +316,7 @@ def parse_lexicon(text: str, source: str = "<string>") -> Lexicon:
 def _parse(text: str, source: str, sha256: str) -> Lexicon:
     text = text.removeprefix("\ufeff")
     try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
+        root = yaml.compose(text, Loader=BoundedLoader)
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         raise _raise_problems([(mark.line + 1 if mark else None, _yaml_message(exc))], source) from None

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import bisect
 from collections.abc import Mapping
 from functools import lru_cache
 
@@ -10,37 +9,34 @@ import pandas as pd
 
 from ..text.inflect import fold, key_function
 from ..text.tokens import is_negation_cue
-from .lexicon import INFLECT_STEM, LINT_COLUMNS, LINT_KINDS, Lexicon, Term
+from .lexicon import LINT_COLUMNS, LINT_KINDS, Lexicon, Term
 
 
-class _Keys:
-    """How lint keys a word, the way the coder matches it (folded; lemma or stem when inflecting)."""
+@lru_cache(maxsize=8)
+def _stemmer(language: str, keep_accents: bool = False):
+    """Cached word -> inflection key (the folded lemma, as the coder matches) for ``language``.
 
-    def __init__(self, lexicon: Lexicon) -> None:
-        self.keep_accents = lexicon.keep_accents
-        self.functions = {kind: lru_cache(maxsize=None)(key_function(mode, lexicon.language,
-                                                                     lexicon.keep_accents))
-                          for kind, mode in (("lemma", True), ("stem", INFLECT_STEM))}
-
-    def of(self, kind: str, word: str) -> str:
-        """The (first) key of ``word`` under ``kind`` ("lemma" or "stem")."""
-        return self.functions[kind](word)[0]
-
-    def words(self, term: Term) -> tuple[tuple[str, str], ...]:
-        """How each word matches: ("prefix", p), ("lemma", k), ("stem", k) or ("exact", w)."""
-        keys = []
-        for word in term.words:
-            if word.endswith("*"):
-                keys.append(("prefix", fold(word[:-1], self.keep_accents)))
-            elif term.inflect:
-                kind = "stem" if term.inflect == INFLECT_STEM else "lemma"
-                keys.append((kind, self.of(kind, word)))
-            else:
-                keys.append(("exact", fold(word, self.keep_accents)))
-        return tuple(keys)
+    Lint keys every inflecting word by its lemma, also for terms with ``inflect: stem``
+    (an approximation: their Snowball stems are looser).
+    """
+    key = key_function(True, language, keep_accents)
+    return lru_cache(maxsize=None)(lambda word: key(word)[0])
 
 
-def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_words, keys: _Keys) -> bool:
+def _word_keys(term: Term, stem, keep_accents: bool = False) -> tuple[tuple[str, str], ...]:
+    """How each word matches: ("prefix", p), ("stem", inflection key) or ("exact", w), folded."""
+    keys = []
+    for word in term.words:
+        if word.endswith("*"):
+            keys.append(("prefix", fold(word[:-1], keep_accents)))
+        elif term.inflect and stem is not None:
+            keys.append(("stem", stem(word)))
+        else:
+            keys.append(("exact", fold(word, keep_accents)))
+    return tuple(keys)
+
+
+def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_words, stem) -> bool:
     """Does every text matched by term ``a`` include the texts matched by term ``b``?"""
     if len(a) != len(b):
         return False
@@ -48,17 +44,84 @@ def _covers(a: tuple[tuple[str, str], ...], b: tuple[tuple[str, str], ...], b_wo
         if kind_a == "prefix":
             if kind_b == "prefix":
                 ok = value_b.startswith(value_a)
-            else:  # for a lemma or stem, the word as written (its other forms mostly share the prefix)
-                ok = (fold(word_b, keys.keep_accents) if kind_b in ("lemma", "stem") else value_b
-                      ).startswith(value_a)
-        elif kind_a in ("lemma", "stem"):
-            ok = (kind_b == kind_a and value_b == value_a) or (kind_b == "exact"
-                                                                and keys.of(kind_a, value_b) == value_a)
+            else:  # for a stem, the word as written (its other forms mostly share the prefix)
+                ok = (word_b if kind_b == "stem" else value_b).startswith(value_a)
+        elif kind_a == "stem":
+            ok = kind_b != "prefix" and (value_b if kind_b == "stem" else stem(value_b)) == value_a
         else:
             ok = kind_b == "exact" and value_a == value_b
         if not ok:
             return False
     return True
+
+
+Keys = tuple[tuple[str, str], ...]
+
+
+def _normal(key: tuple[str, str], stem) -> str:
+    """What a stem or exact word key must equal to be covered: its stem (or the word without a stemmer)."""
+    kind, value = key
+    return stem(value) if kind == "exact" and stem is not None else value
+
+
+class _CoverIndex:
+    """Terms indexed so that those able to cover a run of words are found without a scan.
+
+    A term with no wildcard can only cover words with the same stems (the ``whole`` table);
+    one starting with a wildcard, words starting with its prefix (``prefixed``, looked up
+    once per prefix length in use); one with a later wildcard, words with the same first
+    stem (``mixed``). Lookups are exact, so lint stays near-linear in the number of terms.
+    """
+
+    def __init__(self, items: list[Keys], stem) -> None:
+        self.stem = stem
+        self.whole: dict[tuple[str, ...], list[int]] = {}
+        self.mixed: dict[tuple[int, str], list[int]] = {}
+        self.prefixed: dict[tuple[int, str], list[int]] = {}
+        self.prefix_lengths: list[int] = []
+        for position, keys in enumerate(items):
+            kind, value = keys[0]
+            if kind == "prefix":
+                self.prefixed.setdefault((len(keys), value), []).append(position)
+            elif any(k == "prefix" for k, _ in keys):
+                self.mixed.setdefault((len(keys), _normal(keys[0], stem)), []).append(position)
+            else:
+                self.whole.setdefault(tuple(_normal(key, stem) for key in keys), []).append(position)
+        self.prefix_lengths = sorted({len(value) for _, value in self.prefixed})
+
+    def candidates(self, keys: Keys, words: tuple[str, ...]) -> list[int]:
+        """Positions of the items that may cover ``keys`` (same length; check with ``_covers``)."""
+        kind, value = keys[0]
+        found: list[int] = []
+        if kind != "prefix":
+            if not any(k == "prefix" for k, _ in keys):
+                found += self.whole.get(tuple(_normal(key, self.stem) for key in keys), [])
+            found += self.mixed.get((len(keys), _normal(keys[0], self.stem)), [])
+        text = words[0] if kind == "stem" else value
+        for length in self.prefix_lengths:
+            if length > len(text):
+                break
+            found += self.prefixed.get((len(keys), text[:length]), [])
+        return found
+
+
+def _first_cover(index: _CoverIndex, items: list[Keys], keys: Keys, words: tuple[str, ...], stem,
+                 shorter: bool, negation_blocks: bool) -> int | None:
+    """The first item (in ``items`` order) that covers a run of words inside ``keys``.
+
+    ``shorter``: only runs shorter than the whole; ``negation_blocks``: a run preceded
+    by a negation cue inside ``keys`` does not count.
+    """
+    best = None
+    for size in range(1, len(keys) + (0 if shorter else 1)):
+        for offset in range(len(keys) - size + 1):
+            if negation_blocks and any(is_negation_cue(word) for word in words[:offset]):
+                break
+            run, run_words = keys[offset:offset + size], words[offset:offset + size]
+            for position in index.candidates(run, run_words):
+                if (best is None or position < best) and _covers(items[position], run, run_words, stem):
+                    best = position
+    return best
 
 
 def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | None = None,
@@ -71,8 +134,7 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
         A term matches the same words as a term of another theme, and neither
         theme is an ancestor of the other (one answer would count for both).
         Inflection twins (``queue`` / ``queues`` with ``inflect``, by the
-        lemmatiser of the lexicon's language, or its Snowball stemmer for
-        ``inflect: stem``) and wildcards covering a
+        lemmas of the lexicon's language) and wildcards covering a
         whole term (``toilet*`` / ``toilets``) count as the same.
     redundant
         Within one theme, every match of a term is already a match of another
@@ -108,34 +170,18 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
     """
     import pandas as pd
 
-    stem = _Keys(lexicon)
+    stem = _stemmer(lexicon.language, lexicon.keep_accents)
     rows: list[tuple[str, str, str, int, str]] = []
-    entries = [(theme, term, stem.words(term)) for theme in lexicon.themes for term in theme.terms]
+    entries = [(theme, term, _word_keys(term, stem, lexicon.keep_accents))
+               for theme in lexicon.themes for term in theme.terms]
     related = {theme.id: {theme.id, *lexicon.ancestors(theme.id)} for theme in lexicon.themes}
 
-    # Candidate pairs (covering, covered): same length and a first word that can match the same
-    # tokens (the same stem, or starting with a wildcard's prefix).
-    def first_key(keys: tuple[tuple[str, str], ...]) -> tuple[str, str]:
-        kind, value = keys[0]
-        return ("lemma", stem.of("lemma", value)) if kind == "exact" else (kind, value)
-
-    by_first: dict[tuple[int, tuple[str, str]], list[int]] = {}
-    for index, (_, term, keys) in enumerate(entries):
-        by_first.setdefault((len(term.words), first_key(keys)), []).append(index)
-    first_words = sorted((term.words[0].rstrip("*"), index) for index, (_, term, _) in enumerate(entries))
+    # Pairs (covering, covered): each term asks an index for the terms that can cover it.
+    index = _CoverIndex([keys for _, _, keys in entries], stem)
     pairs: set[tuple[int, int]] = set()
-    for a, (_, term, keys) in enumerate(entries):
-        if keys[0][0] == "prefix":
-            start = bisect.bisect_left(first_words, (keys[0][1], -1))
-            candidates = []
-            for word, b in first_words[start:]:
-                if not word.startswith(keys[0][1]):
-                    break
-                candidates.append(b)
-        else:
-            candidates = by_first.get((len(term.words), first_key(keys)), [])
-        pairs.update((a, b) for b in candidates
-                     if b != a and _covers(keys, entries[b][2], entries[b][1].words, stem))
+    for b, (_, term, keys) in enumerate(entries):
+        pairs.update((a, b) for a in index.candidates(keys, term.words)
+                     if a != b and _covers(entries[a][2], keys, term.words, stem))
 
     reported: set[int] = set()
     for a, b in sorted(pairs, key=lambda pair: (entries[pair[1]][1].line, pair[1], entries[pair[0]][1].line,
@@ -168,42 +214,34 @@ def lint_lexicon(lexicon: Lexicon, term_hits: Mapping[tuple[str, str], int] | No
     # nothing, unless (negated: drop) a negation cue inside the phrase precedes that term.
     position = {id(term): index for index, (_, term, _) in enumerate(entries)}
     for theme in lexicon.themes:
+        term_keys = [entries[position[id(term)]][2] for term in theme.terms]
+        theme_index = _CoverIndex(term_keys, stem)
         for phrase in theme.terms:
             if not phrase.is_phrase or position[id(phrase)] in reported:
                 continue
             phrase_keys = entries[position[id(phrase)]][2]
-            for term in theme.terms:
-                size = len(term.words)
-                if size >= len(phrase.words):
-                    continue
-                keys = entries[position[id(term)]][2]
-                hit = next((offset for offset in range(len(phrase.words) - size + 1)
-                            if _covers(keys, phrase_keys[offset:offset + size],
-                                       phrase.words[offset:offset + size], stem)
-                            and (theme.negated != "drop"
-                                 or not any(is_negation_cue(word) for word in phrase.words[:offset]))),
-                           None)
-                if hit is not None:
-                    rows.append(("redundant", theme.id, phrase.text, phrase.line,
-                                 f"always contains a match of '{term.text}' (line {term.line})"))
-                    reported.add(position[id(phrase)])
-                    break
+            first = _first_cover(theme_index, term_keys, phrase_keys, phrase.words, stem, shorter=True,
+                                 negation_blocks=theme.negated != "keep")
+            if first is not None:
+                term = theme.terms[first]
+                rows.append(("redundant", theme.id, phrase.text, phrase.line,
+                             f"always contains a match of '{term.text}' (line {term.line})"))
+                reported.add(position[id(phrase)])
 
     # An exclusion that is part of every match of a term vetoes that term for good.
     for theme in lexicon.themes:
-        exclusion_keys = [(exclusion, stem.words(exclusion)) for exclusion in theme.exclusions]
+        exclusion_keys = [_word_keys(exclusion, stem, lexicon.keep_accents) for exclusion in theme.exclusions]
+        exclusion_index = _CoverIndex(exclusion_keys, stem)
         for term in theme.terms:
             if position[id(term)] in reported:
                 continue
-            term_keys = entries[position[id(term)]][2]
-            for exclusion, keys in exclusion_keys:
-                size = len(keys)
-                if any(_covers(keys, term_keys[offset:offset + size], term.words[offset:offset + size], stem)
-                       for offset in range(len(term.words) - size + 1)):
-                    rows.append(("vetoed_term", theme.id, term.text, term.line,
-                                 f"every match is vetoed by the exclusion '{exclusion.text}' "
-                                 f"(line {exclusion.line}); remove one or set inflect: false on it"))
-                    break
+            first = _first_cover(exclusion_index, exclusion_keys, entries[position[id(term)]][2], term.words,
+                                 stem, shorter=False, negation_blocks=False)
+            if first is not None:
+                exclusion = theme.exclusions[first]
+                rows.append(("vetoed_term", theme.id, term.text, term.line,
+                             f"every match is vetoed by the exclusion '{exclusion.text}' "
+                             f"(line {exclusion.line}); remove one or set inflect: false on it"))
 
     if term_hits is not None:
         for theme, term, _ in entries:

@@ -181,11 +181,20 @@ def g_squared(y_group, y_reference, n_group, n_reference) -> np.ndarray:
 def log_ratio(y_group, y_reference, n_group, n_reference, zero: float = LOG_RATIO_ZERO) -> np.ndarray:
     """Hardie's (2014) Log Ratio: log2(rate_group / rate_reference).
 
-    A count of exactly 0 is replaced by ``zero`` (default 0.5) first.
+    A count of exactly 0 is replaced by ``zero`` (default 0.5) first, but by no more
+    than half the count the other side's rate would give it: with a tiny side (a
+    group of one answer, or a small weighted total) 0.5 alone can make the zero
+    side's rate the larger one and flip the sign. So the sign always follows the
+    rates: a side with a count of 0 gets a Log Ratio of at most -1 against a side
+    with a positive count, and two zero counts give 0.
     """
-    y_group = np.where(np.asarray(y_group, float) == 0, zero, y_group)
-    y_reference = np.where(np.asarray(y_reference, float) == 0, zero, y_reference)
-    return np.log2((y_group / np.asarray(n_group, float)) / (y_reference / np.asarray(n_reference, float)))
+    y_g, y_r = np.asarray(y_group, float), np.asarray(y_reference, float)
+    n_g, n_r = np.asarray(n_group, float), np.asarray(n_reference, float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        adjusted_g = np.where(y_g == 0, np.minimum(zero, 0.5 * (y_r / n_r) * n_g), y_g)
+        adjusted_r = np.where(y_r == 0, np.minimum(zero, 0.5 * (y_g / n_g) * n_r), y_r)
+        ratio = np.log2((adjusted_g / n_g) / (adjusted_r / n_r))
+    return np.where((y_g == 0) & (y_r == 0), 0.0, ratio)[()]
 
 
 # --------------------------------------------------------------------------- options
@@ -515,6 +524,15 @@ def keyness(
     return frame
 
 
+def _group_sizes(documents: np.ndarray, minimum: int) -> tuple[np.ndarray, np.ndarray]:
+    """(groups large enough to compare, groups with answers but fewer than ``minimum``).
+
+    A group of one or two answers has rates of 0 or 1 for every term; it is left out of
+    the automatic comparisons (and named in the skipped notes) rather than reported.
+    """
+    return np.flatnonzero(documents >= minimum), np.flatnonzero((documents > 0) & (documents < minimum))
+
+
 def _labels(values: Any) -> tuple[np.ndarray, np.ndarray]:
     """(codes with -1 for missing, sorted distinct values) of one group column."""
     codes, uniques = pd.factorize(pd.Series(values, dtype=object), sort=True)
@@ -624,7 +642,8 @@ def compare(
         for variable in needed:
             codes, values = labels[variable]
             counts = _class_sums(mats, np.where(scope, codes, -1), len(values), columns)
-            jobs = _comparison_jobs(counts, variable, values, by, wave, rest, pairs, theme, skipped)
+            jobs = _comparison_jobs(counts, variable, values, by, wave, rest, pairs, theme, skipped,
+                                    options.min_respondents)
             for g, r in jobs:
                 frame, summary = _score(sub_terms, sub_words, *_sides(counts, g, r), options, parts)
                 n_comparisons += 1
@@ -694,7 +713,7 @@ def _frequent_columns(mats: _Matrices, answered: np.ndarray, min_respondents: in
 
 
 def _comparison_jobs(counts: _Counts, variable: str, values: np.ndarray, by: list[str], wave: str | None,
-                     rest: bool, pairs: list[tuple], theme: str, skipped: list[str]
+                     rest: bool, pairs: list[tuple], theme: str, skipped: list[str], minimum: int = 1
                      ) -> list[tuple[int, int | None]]:
     """(group, reference or None for the rest) class pairs to score for one variable and scope.
 
@@ -702,14 +721,16 @@ def _comparison_jobs(counts: _Counts, variable: str, values: np.ndarray, by: lis
     """
     where = f" within theme '{theme}'" if theme else ""
     jobs: list[tuple[int, int | None]] = []
-    with_answers = np.flatnonzero(counts.documents > 0)
+    with_answers, too_small = _group_sizes(counts.documents, minimum)
     if variable in by and (rest or variable == wave):
+        skipped.extend(f"{variable}={values[i]}{where}: {int(counts.documents[i])} answer(s), fewer than the "
+                       f"minimum of {minimum}" for i in too_small)
         if len(with_answers) < 2:
             if theme:
                 skipped.append(f"'{variable}'{where}: fewer than two groups with answers")
                 return []
-            raise AnalysisError(f"group variable '{variable}' has {len(with_answers)} group(s) "
-                                "with answers; keyness needs at least two", column=str(variable))
+            raise AnalysisError(f"group variable '{variable}' has {len(with_answers)} group(s) with at least "
+                                f"{minimum} answers; keyness needs at least two", column=str(variable))
         skipped.extend(f"{variable}={values[i]}{where}: no answers"
                        for i in np.flatnonzero(counts.documents == 0))
         if rest:

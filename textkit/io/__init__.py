@@ -14,4 +14,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "write_outputs": "output", "csv_writer": "output", "parquet_writer": "output", "text_writer": "output",
     "json_writer": "output", "file_sha256": "output",
     "workbook_writer": "workbook", "read_coding_file": "workbook", "neutralise_cell": "workbook",
+    "xlsx_writer": "output", "safe_cell": "output", "check_hand_code_ids": "readers",
 })

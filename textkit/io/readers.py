@@ -20,6 +20,16 @@ Decisions
   and is counted in a note, so the response still counts in the overall figures.
 - Id, strata, cluster, wave and group columns become trimmed text (SPSS value labels
   applied, whole numbers written without ``.0``); weight and fpc become float64.
+- Limits: only regular files are read (a device, pipe or socket is refused before it
+  is opened) and none over :data:`MAX_SURVEY_BYTES` (2 GiB). An answer longer than
+  :data:`MAX_ANSWER_CHARS` characters (20,000, about 3,500 words; a config's
+  ``max_answer_chars`` overrides it) is cut to that length before coding; how many
+  answers were cut and how many characters were left out is reported in a note.
+- Refused with one line rather than read wrongly: a quoted CSV cell that is never
+  closed or is followed by stray text (the line it starts on is named), an Excel
+  workbook with no sheets, a formula cell without a saved result (the workbook was
+  written by a program that does not compute formulas: open and save it in a
+  spreadsheet program), and hand codes that are not theme ids (``1``, ``yes``...).
 """
 
 from __future__ import annotations
@@ -27,6 +37,7 @@ from __future__ import annotations
 import codecs
 import csv
 import difflib
+import hashlib
 import io
 import re
 import sqlite3
@@ -37,12 +48,29 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import InputError, ProblemCollector
 from .config import SURVEY_FORMATS, SurveyConfig, normalise_answer, reading_option_misfit, survey_format
+from .data_checks import (
+    RowPlaces,
+    add_rows,
+    check_design_labels,
+    check_fpc,
+    check_ids,
+    check_wave_values,
+    check_weights,
+)
 from .output import file_sha256
+from .yaml_files import check_regular_file
 
 #: Label given to a missing wave or group value.
 MISSING_LABEL = "(missing)"
+#: Largest survey file read, in bytes.
+MAX_SURVEY_BYTES = 2 * 1024**3
+#: Default longest answer coded, in characters (the rest is counted in a note).
+MAX_ANSWER_CHARS = 20_000
+#: Hand codes that are answers to a yes/no question, not theme ids.
+_NOT_THEME_IDS = {"yes", "no", "y", "n", "true", "false", "x", "ok", "none", "na", "nan", "null"}
+_THEME_ID = re.compile(r"[a-z][a-z0-9_]*\Z")
 
 _CSV_DELIMITERS = (",", ";", "\t", "|")
 _DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
@@ -64,13 +92,18 @@ class SurveyData:
     notes : list of str
         Things the user should know (encoding fallback, zero weights...).
     source_sha256 : str
-        Hex SHA-256 of the survey file's bytes (for manifests).
+        Hex SHA-256 of the survey file's bytes (for manifests); for wave files, of
+        their waves and hashes.
+    files : list of dict
+        For a survey stacked from wave files: ``wave``, ``path``, ``sha256`` and
+        ``rows`` of each file, in stacking order (empty for one file).
     """
 
     frame: pd.DataFrame
     config: SurveyConfig
     notes: list[str] = field(default_factory=list)
     source_sha256: str = ""
+    files: list[dict] = field(default_factory=list)
 
     @property
     def n_responses(self) -> int:
@@ -148,10 +181,7 @@ def read_table(path: str | Path, *, sheet: str | int | None = None, table: str |
             raise InputError(misfit, source=source)
     if table is not None and query is not None:
         raise InputError("give either a table or a query, not both", source=source)
-    try:
-        size = source.stat().st_size
-    except OSError as error:
-        raise InputError(f"cannot read the file: {error.strerror}", source=source) from error
+    size = check_regular_file(source, "survey file", MAX_SURVEY_BYTES)
     if size == 0:
         raise InputError("the file is empty (0 bytes); expected a header row and data rows", source=source)
 
@@ -277,10 +307,32 @@ def _read_csv(source: Path, encoding: str | None, delimiter: str | None, notes: 
             raise InputError("a quoted cell starting in this row is never closed (missing '\"')",
                              source=source, row=int(match.group(1))) from None
         raise InputError(f"not readable as CSV: {message.split('C error: ')[-1]}", source=source) from None
+    if '"' in text:
+        _check_quoting(text, delimiter, source)
     header = raw.iloc[0].tolist()
     frame = raw.iloc[1:].reset_index(drop=True)
     frame.columns = header
     return frame
+
+
+def _check_quoting(text: str, delimiter: str, source: Path) -> None:
+    """Refuse a quoted cell that is never closed or has text after its closing quote.
+
+    The C parser reads such a cell on, taking the following rows into it, so the
+    error would surface later as a wrong field (a "missing weight"). Python's csv
+    module in strict mode stops at the spot; the line where the bad row starts is named.
+    """
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, quotechar='"', strict=True)
+    start = 1
+    try:
+        for _ in reader:
+            start = reader.line_num + 1
+    except csv.Error as error:
+        problem = ("is never closed" if "end of data" in str(error)
+                   else "has text after its closing quote")
+        raise InputError(f"a quoted cell in the row starting on this line {problem} (missing or stray '\"'; "
+                         "a '\"' inside a quoted cell must be doubled: \"\")", source=source,
+                         line=start) from None
 
 
 def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.DataFrame:
@@ -291,6 +343,8 @@ def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.D
                          source=source) from None
     with book:
         names = list(book.sheet_names)
+        if not names:
+            raise InputError("the workbook has no sheets; save the survey table in a sheet", source=source)
         listing = ", ".join(repr(n) for n in names)
         if sheet is None:
             chosen = names[0]
@@ -313,10 +367,43 @@ def _read_excel(source: Path, sheet: str | int | None, notes: list[str]) -> pd.D
                              source=source) from None
     if raw.empty:
         raise InputError(f"sheet {chosen!r} is empty; expected a header row and data rows", source=source)
+    if raw.isna().to_numpy().any():
+        _check_formula_results(source, chosen)
     header = raw.iloc[0].tolist()
     frame = raw.iloc[1:].reset_index(drop=True).infer_objects()
     frame.columns = header
     return frame
+
+
+_FORMULA_ELEMENT = re.compile(rb"<(?:\w+:)?f[ >]")
+
+
+def _check_formula_results(source: Path, sheet: str) -> None:
+    """Refuse a formula cell of ``sheet`` that has no saved result (it would read as missing)."""
+    import zipfile
+
+    import openpyxl
+
+    try:
+        with zipfile.ZipFile(source) as archive:
+            parts = [n for n in archive.namelist() if n.startswith("xl/worksheets/") and n.endswith(".xml")]
+            if not any(_FORMULA_ELEMENT.search(archive.read(n)) for n in parts):
+                return  # no formulas anywhere: the usual case, decided without parsing the sheet twice
+        formulas = openpyxl.load_workbook(source, read_only=True, data_only=False)
+        results = openpyxl.load_workbook(source, read_only=True, data_only=True)
+    except Exception:  # the workbook was read once already; leave damage to that reader
+        return
+    try:
+        for cells, values in zip(formulas[sheet].iter_rows(), results[sheet].iter_rows(values_only=True),
+                                 strict=False):
+            for cell, value in zip(cells, values, strict=False):
+                if getattr(cell, "data_type", None) == "f" and value is None:
+                    raise InputError(f"cell {cell.coordinate} of sheet {sheet!r} holds a formula with no saved "
+                                     "result, so its value is unknown; open the workbook in a spreadsheet "
+                                     "program and save it (or paste the values)", source=source)
+    finally:
+        formulas.close()
+        results.close()
 
 
 def _read_parquet(source: Path) -> pd.DataFrame:
@@ -492,8 +579,12 @@ def _label_text(series: pd.Series) -> pd.Series:
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
 
 
-def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: list[str]) -> pd.Series:
-    """Series -> float64; a value that is not a number is an error naming its row."""
+def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: list[str],
+               problems: tuple[ProblemCollector, RowPlaces] | None = None) -> pd.Series:
+    """Series -> float64; a value that is not a number is an error naming its row.
+
+    With ``problems`` every such value is recorded there (and read as NaN) instead.
+    """
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
         return series.astype(np.float64)
     text = _label_text(series)
@@ -506,7 +597,10 @@ def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: l
             numbers = pd.to_numeric(text.str.replace(",", ".", regex=False), errors="coerce")
             bad = (text.notna() & numbers.isna()).to_numpy()
             notes.append(f"{source}: column {column!r} uses decimal commas; read 1,5 as 1.5")
-    if bad.any():
+    if bad.any() and problems is not None:
+        collector, places = problems
+        add_rows(collector, places, bad, column, lambda p: f"{role} {text.iloc[p]!r} is not a number")
+    elif bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise InputError(f"{role} {text.iloc[row]!r} is not a number", source=source, row=row + 1,
                          column=column)
@@ -583,77 +677,62 @@ def _check_columns_present(frame: pd.DataFrame, config: SurveyConfig, source: Pa
                      column=column)
 
 
-def _check_ids(ids: pd.Series, column: str, source: Path) -> None:
-    missing = ids.isna().to_numpy()
-    if missing.any():
-        raise InputError("missing response id; every row needs a unique id", source=source,
-                         row=int(np.flatnonzero(missing)[0]) + 1, column=column)
-    repeat = ids.duplicated(keep="first").to_numpy()
-    if repeat.any():
-        second = int(np.flatnonzero(repeat)[0])
-        value = ids.iloc[second]
-        first = int(np.flatnonzero((ids == value).to_numpy())[0])
-        n_repeated = int(ids[repeat].nunique())
-        more = f" ({n_repeated - 1} other id(s) repeat too)" if n_repeated > 1 else ""
-        raise InputError(f"response id {value!r} appears twice, in rows {first + 1} and {second + 1}{more}; "
-                         "ids must be unique", source=source, row=second + 1, column=column)
+def _cap_answers(text: pd.Series, cap: int, what: str, source: Path, notes: list[str]) -> pd.Series:
+    """Cut answers longer than ``cap`` characters to ``cap``; count what was left out in a note."""
+    lengths = text.str.len()
+    over = (lengths > cap).fillna(False).to_numpy(dtype=bool)
+    if not over.any():
+        return text
+    left_out = int((lengths[over] - cap).sum())
+    text = text.copy()
+    text[over] = text[over].str.slice(0, cap)
+    notes.append(f"{source}: {int(over.sum())} answer(s) to {what} are longer than {cap:,} characters "
+                 f"(longest {int(lengths.max()):,}); only the first {cap:,} of each were coded, "
+                 f"{left_out:,} characters left out (max_answer_chars sets the limit)")
+    return text
 
 
-def _check_weights(weights: pd.Series, column: str, source: Path, notes: list[str]) -> None:
-    values = weights.to_numpy(dtype=np.float64)
-    checks = ((np.isnan(values), "missing weight; every response needs one (0 leaves it out of estimates)"),
-              (np.isinf(values), "infinite weight"),
-              (values < 0, "negative weight {value}; weights must be 0 or more"))
-    for bad, message in checks:
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise InputError(message.format(value=values[row]), source=source, row=row + 1, column=column)
-    zero = int((values == 0).sum())
-    if zero == len(values):
-        raise InputError("every weight is 0; at least one response must have a positive weight",
-                         source=source, column=column)
-    if zero:
-        notes.append(f"{source}: {zero} response(s) have weight 0 in column {column!r}; they are kept "
-                     "but do not count in weighted estimates")
+def check_hand_code_ids(frame: pd.DataFrame, codes_column: str, source: str | Path,
+                        known_ids: tuple[str, ...] | list[str] = ()) -> None:
+    """Refuse hand codes that cannot be theme ids (``2``, ``yes``, ``no``, ``Toilets``).
+
+    ``codes_column`` holds theme ids separated by ``;``; ids are lower-case letters,
+    digits and ``_``, starting with a letter (``known_ids`` are always accepted). A
+    frame without that column (the wide 0/1 form) is left alone.
+
+    Raises
+    ------
+    InputError
+        Naming the first such code with its row and column.
+    """
+    if codes_column not in frame.columns:
+        return
+    known = set(known_ids)
+    for row, value in enumerate(_as_text(frame[codes_column]), start=1):
+        if not isinstance(value, str):
+            continue
+        for code in (part.strip() for part in value.split(";")):
+            if not code or code in known:
+                continue
+            if not _THEME_ID.match(code) or code in _NOT_THEME_IDS:
+                raise InputError(f"hand code {code!r} is not a theme id; list the ids of the themes an answer "
+                                 "has, separated by ';' (a yes/no or 0/1 column is not a hand code)",
+                                 source=source, row=row, column=codes_column)
 
 
-def _check_fpc(fpc: pd.Series, strata: pd.Series | None, clusters: pd.Series | None, column: str,
-               source: Path) -> None:
-    values = fpc.to_numpy(dtype=np.float64)
-    for bad, message in ((np.isnan(values), "missing fpc (population size of the stratum)"),
-                         (~np.isfinite(values) | (values <= 0),
-                          "fpc {value} is not a positive population size")):
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise InputError(message.format(value=values[row]), source=source, row=row + 1, column=column)
-    stratum = strata if strata is not None else pd.Series("(all)", index=fpc.index, dtype="str")
-    first_value = fpc.groupby(stratum, sort=False).transform("first")
-    differs = (fpc != first_value).to_numpy()
-    if differs.any():
-        row = int(np.flatnonzero(differs)[0])
-        label = stratum.iloc[row]
-        raise InputError(f"fpc {values[row]:g} differs from {first_value.iloc[row]:g} given earlier for "
-                         f"stratum {label!r}; the fpc must be the same for every response of a stratum",
-                         source=source, row=row + 1, column=column)
-    # First-stage sample size: PSUs when clustered, else responses.
-    units = clusters if clusters is not None else pd.Series(np.arange(len(fpc)), index=fpc.index)
-    sampled = units.groupby(stratum, sort=False).transform("nunique").to_numpy(dtype=np.float64)
-    short = values < sampled
-    if short.any():
-        row = int(np.flatnonzero(short)[0])
-        what = "PSUs" if clusters is not None else "responses"
-        raise InputError(f"fpc {values[row]:g} for stratum {stratum.iloc[row]!r} is smaller than the "
-                         f"{int(sampled[row])} {what} sampled in it; the fpc is the population size N_h "
-                         "(a count of units), not a sampling fraction", source=source, row=row + 1,
-                         column=column)
-
-
-def read_survey(config: SurveyConfig) -> SurveyData:
+def read_survey(config: SurveyConfig, *, missing_design: str = "refuse") -> SurveyData:
     """Read the survey a config names and check it against the config.
 
     Parameters
     ----------
     config : SurveyConfig
+        With ``survey_waves`` set, every wave file is read, given its wave value and
+        stacked (their columns must agree).
+    missing_design : {"refuse", "drop"}, default "refuse"
+        What to do when the config names weight or design columns (weight, strata,
+        cluster, fpc) that the data lacks: refuse, or leave those roles out of the
+        returned ``SurveyData.config`` with a warning in the notes (coding uses none
+        of them; estimating prevalence needs them all).
 
     Returns
     -------
@@ -666,24 +745,35 @@ def read_survey(config: SurveyConfig) -> SurveyData:
     ------
     InputError
         Naming the file, the column and (when it applies) the 1-based data row: any
-        :func:`read_table` error; a configured column the file lacks (with close
-        matches); a missing or repeated response id (both rows named); a weight that is
-        not a number, missing, infinite or negative, or all weights 0; an fpc that is
-        not a number, missing, not positive, not constant within a stratum or smaller
-        than the stratum's sample (PSUs when clustered); a question column with no
-        text at all; a missing strata or cluster value.
+        :func:`read_table` error; a wave file whose columns differ from the first
+        one's; a configured column the file lacks (with close matches); a question
+        column with no text at all.
+    DataProblemsError
+        Up to 20 row-level problems at once (the rest counted), each naming file,
+        row and column: a missing or repeated response id (both rows named); a weight
+        that is not a number, missing, infinite or negative, or all weights 0; an fpc
+        that is not a number, missing, not positive, not constant within a stratum or
+        smaller than the stratum's sample (PSUs when clustered); a missing strata or
+        cluster value; a wave cell that contradicts the wave its file is given.
     """
-    source = config.survey
-    frame, notes = read_table(source, **config.reading_options())
+    frame, notes, places, files = _read_survey_files(config)
+    source = places.sources[0]
+    problems = ProblemCollector()
+    if config.survey_waves:
+        frame = _give_waves(frame, config, places, problems)
+    if missing_design == "drop":
+        config = _without_absent_design(frame, config, source, notes)
     _check_columns_present(frame, config, source)
     frame = frame.copy()
 
     ids = _label_text(frame[config.id_column])
-    _check_ids(ids, config.id_column, source)
+    check_ids(ids, config.id_column, places, problems)
     frame[config.id_column] = ids
 
+    cap = getattr(config, "max_answer_chars", None) or MAX_ANSWER_CHARS
     for name, column in config.questions.items():
-        text = _as_text(frame[column])
+        text = _cap_answers(_as_text(frame[column]), cap, f"question {name!r} (column {column!r})", source,
+                            notes)
         if not text.fillna("").str.strip().ne("").any():
             raise InputError(f"the text column of question {name!r} is empty in every row", source=source,
                              column=column)
@@ -692,25 +782,8 @@ def read_survey(config: SurveyConfig) -> SurveyData:
                          "non-answers such as 'n/a'")
         frame[column] = text
 
-    if config.weight is not None:
-        frame[config.weight] = _as_number(frame[config.weight], "weight", config.weight, source, notes)
-        _check_weights(frame[config.weight], config.weight, source, notes)
-
-    for role, column in (("stratum", config.strata), ("cluster", config.cluster)):
-        if column is None:
-            continue
-        labels = _label_text(frame[column])
-        missing = labels.isna().to_numpy()
-        if missing.any():
-            raise InputError(f"missing {role} value; every response must belong to a {role} of the design",
-                             source=source, row=int(np.flatnonzero(missing)[0]) + 1, column=column)
-        frame[column] = labels
-
-    if config.fpc is not None:
-        fpc = _as_number(frame[config.fpc], "fpc", config.fpc, source, notes)
-        _check_fpc(fpc, frame[config.strata] if config.strata else None,
-                   frame[config.cluster] if config.cluster else None, config.fpc, source)
-        frame[config.fpc] = fpc
+    _check_design_rows(frame, config, places, problems, notes)
+    problems.raise_if_any()
 
     for column in dict.fromkeys([c for c in (config.wave, *config.groups) if c is not None]):
         if column in (config.strata, config.cluster):
@@ -723,4 +796,102 @@ def read_survey(config: SurveyConfig) -> SurveyData:
                          f"labelled {MISSING_LABEL!r}")
         frame[column] = labels
 
-    return SurveyData(frame=frame, config=config, notes=notes, source_sha256=file_sha256(source))
+    sha256 = file_sha256(source) if not files else \
+        hashlib.sha256("\n".join(f"{f['wave']} {f['sha256']}" for f in files).encode()).hexdigest()
+    return SurveyData(frame=frame, config=config, notes=notes, source_sha256=sha256, files=files)
+
+
+def _check_design_rows(frame: pd.DataFrame, config: SurveyConfig, places: RowPlaces,
+                       problems: ProblemCollector, notes: list[str]) -> None:
+    """Convert and check the weight, strata, cluster and fpc columns in place, collecting problems."""
+    source = places.sources[0]
+    if config.weight is not None:
+        unreadable = _label_text(frame[config.weight]).notna().to_numpy().copy()
+        frame[config.weight] = _as_number(frame[config.weight], "weight", config.weight, source, notes,
+                                          problems=(problems, places))
+        unreadable &= frame[config.weight].isna().to_numpy()
+        check_weights(frame[config.weight], unreadable, config.weight, places, problems, notes)
+
+    for role, column in (("stratum", config.strata), ("cluster", config.cluster)):
+        if column is not None:
+            frame[column] = _label_text(frame[column])
+            check_design_labels(frame[column], role, column, places, problems)
+
+    if config.fpc is not None:
+        unreadable = _label_text(frame[config.fpc]).notna().to_numpy().copy()
+        fpc = _as_number(frame[config.fpc], "fpc", config.fpc, source, notes, problems=(problems, places))
+        unreadable &= fpc.isna().to_numpy()
+        check_fpc(fpc, unreadable, frame[config.strata] if config.strata else None,
+                  frame[config.cluster] if config.cluster else None, config.fpc, places, problems)
+        frame[config.fpc] = fpc
+
+
+#: Config roles that coding does without (``read_survey(missing_design="drop")``).
+_DESIGN_ROLES = ("weight", "strata", "cluster", "fpc")
+
+
+def _without_absent_design(frame: pd.DataFrame, config: SurveyConfig, source: Path,
+                           notes: list[str]) -> SurveyConfig:
+    """The config without the weight/design roles whose columns the data lacks (a warning in ``notes``)."""
+    import dataclasses
+
+    absent = {role: getattr(config, role) for role in _DESIGN_ROLES
+              if getattr(config, role) is not None and getattr(config, role) not in frame.columns}
+    if not absent:
+        return config
+    named = ", ".join(f"{role} {column!r}" for role, column in absent.items())
+    notes.append(f"warning: {source}: the data has no {named} column named in the config; coding uses none, "
+                 "so it goes on ('textkit prevalence' will need them)")
+    return dataclasses.replace(config, **dict.fromkeys(absent))
+
+
+# ---------------------------------------------------------------------------
+# one survey file per wave
+
+
+def _read_survey_files(config: SurveyConfig) -> tuple[pd.DataFrame, list[str], RowPlaces, list[dict]]:
+    """The survey frame (wave files stacked in config order), notes, row places and file records."""
+    if not config.survey_waves:
+        frame, notes = read_table(config.survey, **config.reading_options())
+        return frame, notes, RowPlaces([config.survey], [len(frame)]), []
+    frames: list[pd.DataFrame] = []
+    notes: list[str] = []
+    files: list[dict] = []
+    for wave, path in config.survey_waves:
+        frame, file_notes = read_table(path, **config.reading_options())
+        notes += file_notes
+        if frames:
+            _check_same_columns(frames[0], config.survey_waves[0][1], frame, path)
+        frames.append(frame)
+        files.append({"wave": wave, "path": str(path), "sha256": file_sha256(path), "rows": len(frame)})
+    paths = [path for _, path in config.survey_waves]
+    notes.append("stacked " + ", ".join(f"{f['rows']:,} rows of {Path(f['path']).name} (wave {f['wave']})"
+                                        for f in files))
+    stacked = pd.concat(frames, ignore_index=True)
+    return stacked, notes, RowPlaces(paths, [len(f) for f in frames]), files
+
+
+def _check_same_columns(first: pd.DataFrame, first_path: Path, frame: pd.DataFrame, path: Path) -> None:
+    """Refuse a wave file whose columns are not those of the first wave file (order may differ)."""
+    missing = [c for c in first.columns if c not in frame.columns]
+    if missing:
+        raise InputError(f"column {missing[0]!r} of the first wave file {first_path.name} is not in this "
+                         "file; every wave file needs the same columns", source=path, column=str(missing[0]))
+    extra = [c for c in frame.columns if c not in first.columns]
+    if extra:
+        raise InputError(f"column {extra[0]!r} is not in the first wave file {first_path.name}; every wave "
+                         "file needs the same columns", source=path, column=str(extra[0]))
+
+
+def _give_waves(frame: pd.DataFrame, config: SurveyConfig, places: RowPlaces,
+                problems: ProblemCollector) -> pd.DataFrame:
+    """Set the wave column to each file's wave; cells already there must agree (blank ones are filled)."""
+    lengths = np.diff(places.starts)
+    given = np.repeat(np.asarray([wave for wave, _ in config.survey_waves], dtype=object), lengths)
+    column = str(config.wave)
+    frame = frame.copy()
+    if column in frame.columns:
+        labels = _label_text(frame[column])
+        check_wave_values(labels, given, column, places, problems)
+    frame[column] = pd.Series(given, index=frame.index, dtype="str")
+    return frame

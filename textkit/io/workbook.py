@@ -25,10 +25,11 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import InputError
+from .output import FORMULA_TRIGGERS, safe_cell
 
 #: First characters that make a spreadsheet read a cell as a formula (common practice: the
-#: OWASP guidance on CSV injection lists these).
-_FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+#: OWASP guidance on CSV injection lists these); the one rule lives in textkit.io.output.
+_FORMULA_TRIGGERS = FORMULA_TRIGGERS
 _FIXED_ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 _FIXED_TIMESTAMP = "2000-01-01T00:00:00Z"
 
@@ -36,12 +37,10 @@ _FIXED_TIMESTAMP = "2000-01-01T00:00:00Z"
 def neutralise_cell(value: Any) -> Any:
     """A text cell that a spreadsheet would run as a formula, made inert with a leading apostrophe.
 
-    Non-text values are returned unchanged. This is the one place that does it for
-    workbooks and CSV files meant for spreadsheets.
+    The rule is :func:`textkit.io.output.safe_cell`, the one every CSV, TSV and XLSX
+    writer uses (control characters made visible too). Non-text values are returned unchanged.
     """
-    if isinstance(value, str) and value.startswith(_FORMULA_TRIGGERS):
-        return "'" + value
-    return value
+    return safe_cell(value)
 
 
 def restore_cell(value: Any) -> Any:
