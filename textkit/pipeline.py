@@ -308,15 +308,20 @@ def _evidence_table(coded: pd.DataFrame, result: CodingResult) -> pd.DataFrame:
 
 
 def _coverage_table(coded: pd.DataFrame, lexicon: Lexicon, config: SurveyConfig,
-                    result: CodingResult) -> pd.DataFrame:
+                    result: CodingResult | None = None) -> pd.DataFrame:
+    """Per question and theme: coded responses, shares, and (with the lexicon's ``result``,
+    when the codes are the lexicon's own) the negated share; NaN without it."""
     themes = list(lexicon.ids)
     weights = coded[config.weight].to_numpy(dtype=float) if config.weight else np.ones(len(coded))
     answered = coded["answered"].to_numpy(dtype=bool)
     # "nothing to report" and "answered, no theme" are two more 0/1 columns to share out
     columns = themes + ["nothing_to_report", "uncoded"]
     # responses whose every counted mention of a theme is negated: negated hits == all hits
-    all_negated = (result.hits - result.negated).toarray() == 0
-    all_negated &= result.matrix.toarray() != 0
+    if result is not None:
+        all_negated = (result.hits - result.negated).toarray() == 0
+        all_negated &= result.matrix.toarray() != 0
+    else:
+        all_negated = np.full((len(coded), len(themes)), np.nan)
     frames = []
     for question in config.questions:
         in_question = (coded["question"] == question).to_numpy() & answered
