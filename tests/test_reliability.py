@@ -27,7 +27,8 @@ from textkit.cli.main import main
 from textkit.coding.coder import ThemeCoder
 from textkit.coding.lexicon import parse_lexicon
 from textkit.errors import InputError, LexiconError
-from textkit.io.output import FORMULA_TRIGGERS, csv_writer, safe_cell, write_outputs, xlsx_writer
+from textkit.io.output import FORMULA_TRIGGERS, csv_writer, safe_cell, write_outputs
+from textkit.io.workbook import Sheet, workbook_writer
 
 RUN = [sys.executable, "-c", "import sys; from textkit.cli.main import main; sys.exit(main())"]
 
@@ -243,7 +244,7 @@ def test_no_output_cell_starts_with_a_trigger(tmp_path):
 
 def test_xlsx_cells_read_back_as_text(tmp_path):
     frame = pd.DataFrame({"text": TRIGGER_TEXTS, "n": np.arange(len(TRIGGER_TEXTS)), "x": -1.5})
-    write_outputs(tmp_path / "out", {"book.xlsx": xlsx_writer({"=sheet": frame})})
+    write_outputs(tmp_path / "out", {"book.xlsx": workbook_writer([Sheet("=sheet", frame)])})
     book = openpyxl.load_workbook(tmp_path / "out" / "book.xlsx")
     cells = [cell for sheet in book for row in sheet.iter_rows() for cell in row]
     assert all(cell.data_type != "f" for cell in cells)

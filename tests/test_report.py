@@ -14,7 +14,8 @@ import pytest
 from report_fixtures import DEMO, HOSTILE_GROUPS, write_crafted_survey
 
 from textkit.cli.main import main
-from textkit.io.export import FORMULA_TRIGGERS, neutralise_frame, neutralise_text, workbook_bytes
+from textkit.io.output import FORMULA_TRIGGERS, safe_cell, safe_frame
+from textkit.io.workbook import Sheet, workbook_bytes
 from textkit.pipeline import build_report, write_report
 
 XHTML = "{http://www.w3.org/1999/xhtml}"
@@ -38,19 +39,19 @@ def crafted_book(crafted):
 # ---------------------------------------------------------------------------
 # Formula injection (the rule: OWASP "CSV injection" advice, common practice)
 # ---------------------------------------------------------------------------
-@pytest.mark.parametrize("text", ["=1+1", "+1", "-1", "@SUM(A1)", "\tx", "\rx"])
+@pytest.mark.parametrize("text", ["=1+1", "+1+1", "-1-A1", "@SUM(A1)", "\tx", "\rx"])
 def test_a_text_starting_with_a_trigger_gets_an_apostrophe(text):
-    assert neutralise_text(text) == "'" + text
+    assert safe_cell(text) == "'" + text
 
 
-@pytest.mark.parametrize("value", ["a=b", "plain", "", 5, -3.5, None])
+@pytest.mark.parametrize("value", ["a=b", "plain", "", "-1", "+2.5", 5, -3.5, None])
 def test_other_values_are_left_alone(value):
-    assert neutralise_text(value) == value
+    assert safe_cell(value) == value  # plain numbers written as text stay as they are
 
 
 def test_numbers_stay_numbers_in_a_neutralised_frame():
     frame = pd.DataFrame({"text": ["=x", "ok"], "number": [-1.5, 2.0]})
-    safe = neutralise_frame(frame)
+    safe = safe_frame(frame)
     assert safe["text"].tolist() == ["'=x", "ok"]
     assert safe["number"].tolist() == [-1.5, 2.0] and safe["number"].dtype.kind == "f"
 
@@ -104,7 +105,12 @@ def test_workbook_shows_flags_as_styles_and_explains_every_column(crafted_book):
 def test_workbook_bytes_depend_only_on_content():
     frame = pd.DataFrame({"estimate": [0.1, 0.2], "flag": ["ok", "caution"]})
     notes = pd.DataFrame({"sheet": ["t", "t"], "column": ["estimate", "flag"], "meaning": ["a", "b"]})
-    assert workbook_bytes({"t": frame}, notes, {"estimate"}) == workbook_bytes({"t": frame}, notes, {"estimate"})
+    def sheets(table):
+        return [Sheet("t", table, percent=frozenset({"estimate"})), Sheet("notes", notes, flag_column=None)]
+
+    first = workbook_bytes(sheets(frame))
+    assert first == workbook_bytes(sheets(frame.copy()))
+    assert first != workbook_bytes(sheets(frame.assign(estimate=[0.1, 0.3])))  # the content does change the bytes
 
 
 # ---------------------------------------------------------------------------
