@@ -568,8 +568,25 @@ def _report_quotes(survey: CodedSurvey, summaries: str | None) -> pd.DataFrame:
     return pd.concat(tables, ignore_index=True)
 
 
-def _report_charts(survey: CodedSurvey, tables: dict[str, pd.DataFrame], facts: dict) -> tuple[list, list[str]]:
-    """Every chart the report's tables support, drawn once as SVG and PNG: (Figures, font notes)."""
+def chart_group_variables(config: SurveyConfig, summaries: str | None) -> list[str]:
+    """Group variables the report draws charts for: the ``--summaries`` one (else the config's first
+    group) and the wave. Every group variable's numbers are in the tables; charts for all of them
+    would multiply the run time (``textkit charts`` draws any of them). Word clouds (the slowest
+    chart) are drawn for the wave comparison only: one two-sided cloud per question."""
+    first = summaries or next(iter(config.groups), None)
+    return [v for v in dict.fromkeys([first, config.wave]) if v]
+
+
+def _wanted_chart(spec, variables: list[str], wave: str | None) -> bool:
+    variable = spec.arguments.get("group_var")
+    if spec.kind == "keyness_cloud":
+        return variable == wave
+    return variable is None or variable == "(all)" or variable in variables
+
+
+def _report_charts(survey: CodedSurvey, tables: dict[str, pd.DataFrame], facts: dict,
+                   variables: list[str]) -> tuple[list, list[str]]:
+    """The report's charts (whole sample, and by ``variables``), drawn once as SVG and PNG: (Figures, font notes)."""
     import os
 
     from .present.catalogue import ResultTables, chart_text, plan_charts, render_charts
@@ -580,7 +597,7 @@ def _report_charts(survey: CodedSurvey, tables: dict[str, pd.DataFrame], facts: 
                   "settings": {"method": facts["method"], "confidence": 0.95, "rule": {"name": facts["rule_name"]}}}
     manifests = {name: (statistics if name in ("prevalence", "comparisons") else coded_manifest) for name in tables}
     results = ResultTables(tables={**tables, "coded": survey.coded}, manifests={**manifests, "coded": coded_manifest})
-    specs = plan_charts(results, clouds=True)
+    specs = [spec for spec in plan_charts(results, clouds=True) if _wanted_chart(spec, variables, survey.config.wave)]
     wording = dict(survey.config.question_text)
     texts = [chart_text(results, spec, wording) for spec in specs]
     rendered, notes = render_charts(results, specs, texts, seed=int(survey.config.seed or 0),
@@ -651,7 +668,8 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
     chart_tables = {"prevalence": prevalence, "comparisons": comparisons, "keyness": keyness}
     if topics is not None:
         chart_tables.update({"topics": topics.terms, "k_selection": topics.k_selection})
-    figures, font_notes = stages.run("charts", _report_charts, survey, chart_tables, facts)
+    chart_variables = chart_group_variables(config, summaries)
+    figures, font_notes = stages.run("charts", _report_charts, survey, chart_tables, facts, chart_variables)
     labels = {theme.id: theme.label for theme in survey.lexicon.themes}
     manifest = survey.manifest
     facts.update({"responses": manifest["counts"]["responses"], "answers": manifest["counts"]["answered"],
@@ -678,7 +696,8 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
         "hand_coded": None if hand_coded is None else {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
         "settings": {"seed": config.seed, "summaries": summaries, "method": facts["method"], "rule": facts["rule"],
                      "fdr_level": 0.05, "keyness_max_terms": 15, "topic_scope": REPORT_TOPIC_SCOPE,
-                     "topic_k_range": list(REPORT_TOPIC_K_RANGE), "quotes_per_theme": REPORT_QUOTES_PER_THEME,
+                     "topic_k_range": list(REPORT_TOPIC_K_RANGE),
+                     "chart_group_variables": chart_variables, "quotes_per_theme": REPORT_QUOTES_PER_THEME,
                      "summary_quotes_per_theme_and_group": SUMMARY_QUOTES_PER_THEME},
         "topics": None if topics is None else {"counts": topics.counts,
                                                "k": {q: m.n_topics_ for q, m in topics.models.items()}},

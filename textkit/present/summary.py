@@ -180,10 +180,14 @@ def summary_figure(summary: GroupSummary) -> Any:
 
 def summary_pdf(summary: GroupSummary) -> bytes:
     """The page as PDF bytes: exactly one A4 page, no creation date (same content, same bytes)."""
+    import warnings
+
     figure = summary_figure(summary)
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="pdf", metadata={"CreationDate": None, "Title": summary.title,
-                                                   "Creator": "textkit", "Producer": "textkit"})
+    with warnings.catch_warnings():  # a glyph the font lacks (an emoji in a quote) is drawn as a box
+        warnings.filterwarnings("ignore", message="Glyph .* missing from font")
+        figure.savefig(buffer, format="pdf", metadata={"CreationDate": None, "Title": summary.title,
+                                                       "Creator": "textkit", "Producer": "textkit"})
     return buffer.getvalue()
 
 
