@@ -120,12 +120,11 @@ def _group_quotes(quotes: pd.DataFrame, prevalence: pd.DataFrame, group_var: str
     chosen = quotes[(quotes["group_var"] == group_var) & (quotes["group"].astype(str) == group)]
     if chosen.empty:
         return []
-    pooled = prevalence[(prevalence["wave"] == ALL) & (prevalence["flag"] != "suppress")]
-    share = pooled.set_index(["question", "theme"])["estimate"]
+    share = prevalence[prevalence["wave"] == ALL].set_index(["question", "theme"])["estimate"]  # order only
     keys = pd.MultiIndex.from_frame(chosen[["question", "theme"]])
-    chosen = chosen.assign(share=share.reindex(keys).to_numpy()).dropna(subset=["share"])
+    chosen = chosen.assign(share=share.reindex(keys).to_numpy())
     chosen = chosen.sort_values(["share", "question", "theme", "rank"], ascending=[False, True, True, True],
-                                kind="stable").drop_duplicates("theme")
+                                kind="stable", na_position="last").drop_duplicates("theme")
     return [(str(q), labels.get(t, str(t))) for q, t in zip(chosen["quote"], chosen["theme"], strict=True)][:n_quotes]
 
 
