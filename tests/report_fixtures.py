@@ -19,16 +19,22 @@ HOSTILE_GROUPS = [
     "=HYPERLINK(\"http://example.invalid\",\"click\")",
     "@SUM(1+1)",
 ]
-#: Answers starting with each formula trigger, or carrying markup.
+#: Answers starting with each formula trigger, or carrying markup; each mentions the invented
+#: 'zephyrgate', the only term of the crafted lexicon's 'gate' theme, so that every quote of that
+#: theme is a hostile answer (quotes need 6 to 60 words).
 HOSTILE_ANSWERS = [
-    "=1+2 <script>document.title='pwned'</script> the queues were long",
-    "+cmd|' /C calc'!A0 expensive parking",
-    "-2+3 <img src=x onerror=alert(1)> dirty toilets",
-    "@SUM(A1) crowded beach",
-    "\tTAB the staff were rude",
-    "\rCR rain all week",
-    "<a href=\"javascript:alert(1)\">click</a> lovely coast",
+    "=1+2 <script>document.title='pwned'</script> the zephyrgate queues were long and slow",
+    "+cmd|' /C calc'!A0 the zephyrgate car park was far too expensive",
+    "-2+3 <img id=injected src=x onerror=\"document.title='pwned'\"> zephyrgate had dirty toilets everywhere",
+    "@SUM(A1) the beach by the zephyrgate was crowded all day",
+    "\tTAB the staff at the zephyrgate were rude to us",
+    "\rCR it rained all week at the zephyrgate camp",
+    "<a href=\"javascript:document.title='pwned'\">click</a> the zephyrgate coast was lovely though",
+    "x\" onmouseover=\"document.title='pwned'\" data-x=\" the zephyrgate path was closed",
 ]
+#: Markup fragments of the hostile answers that must reach the page as text, never as elements.
+HOSTILE_MARKUP = ["<script>document.title='pwned'</script>", "<img id=injected src=x",
+                  "<a href=\"javascript:document.title='pwned'\">", "onmouseover=\"document.title='pwned'\""]
 
 
 def write_crafted_survey(folder: Path, rows: int = 600) -> Path:
@@ -47,7 +53,8 @@ def write_crafted_survey(folder: Path, rows: int = 600) -> Path:
         "  - id: queues\n    label: Queues <b>and</b> waiting\n    terms: [queue, wait*]\n"
         "  - id: cost_value\n    label: \"=Cost & value\"\n    terms: [expensive, price*, parking]\n"
         "  - id: toilets\n    label: Toilets\n    terms: [toilet*]\n"
-        "  - id: weather\n    label: Weather\n    terms: [rain*, wind*]\n", encoding="utf-8")
+        "  - id: weather\n    label: Weather\n    terms: [rain*, wind*]\n"
+        "  - id: gate\n    label: The gate\n    terms: [zephyrgate]\n", encoding="utf-8")
     (folder / "survey.yaml").write_text(
         "survey: survey.csv\nid: response_id\nquestions:\n  low_point: low_point\n  high_point: high_point\n"
         f"weight: weight\nwave: wave\ngroups: [market]\nlexicon: {lexicon}\nseed: 7\n",

@@ -27,7 +27,8 @@ from textkit.cli.main import main
 from textkit.coding.coder import ThemeCoder
 from textkit.coding.lexicon import parse_lexicon
 from textkit.errors import InputError, LexiconError
-from textkit.io.output import FORMULA_TRIGGERS, csv_writer, safe_cell, write_outputs, xlsx_writer
+from textkit.io.output import FORMULA_TRIGGERS, csv_writer, safe_cell, write_outputs
+from textkit.io.workbook import Sheet, workbook_writer
 
 RUN = [sys.executable, "-c", "import sys; from textkit.cli.main import main; sys.exit(main())"]
 
@@ -243,7 +244,7 @@ def test_no_output_cell_starts_with_a_trigger(tmp_path):
 
 def test_xlsx_cells_read_back_as_text(tmp_path):
     frame = pd.DataFrame({"text": TRIGGER_TEXTS, "n": np.arange(len(TRIGGER_TEXTS)), "x": -1.5})
-    write_outputs(tmp_path / "out", {"book.xlsx": xlsx_writer({"=sheet": frame})})
+    write_outputs(tmp_path / "out", {"book.xlsx": workbook_writer([Sheet("=sheet", frame)])})
     book = openpyxl.load_workbook(tmp_path / "out" / "book.xlsx")
     cells = [cell for sheet in book for row in sheet.iter_rows() for cell in row]
     assert all(cell.data_type != "f" for cell in cells)
@@ -294,3 +295,51 @@ def test_adding_any_term_never_removes_a_match(texts, extra, theme):
     before = ThemeCoder(_lexicon_with(None, "")).fit(texts).transform(texts).toarray()
     after = ThemeCoder(grown).fit(texts).transform(texts).toarray()
     assert (after >= before).all()
+
+
+# --------------------------------------------------------------------------- single files (review, sample)
+
+_SLOW_FILE_WRITE = """
+import sys, time
+from pathlib import Path
+from textkit.io.workbook import write_file
+
+def slow(path):
+    Path(path).write_bytes(b"half a workbook")
+    print("writing", flush=True)
+    time.sleep(120)
+
+write_file(sys.argv[1], slow)
+"""
+
+
+def test_a_killed_single_file_write_leaves_no_part_file_and_the_next_write_clears_it(tmp_path):
+    from textkit.io.workbook import write_file
+
+    target = tmp_path / "review.xlsx"
+    target.write_bytes(b"the earlier workbook")
+    (tmp_path / ".review.xlsx.k2j4.part").write_bytes(b"left by an older version")
+    (tmp_path / "other.txt").write_text("not ours", encoding="utf-8")
+    process = subprocess.Popen([sys.executable, "-c", _SLOW_FILE_WRITE, str(target)], stdout=subprocess.PIPE,
+                               text=True)
+    assert process.stdout.readline().strip() == "writing"
+    process.kill()
+    assert process.wait() == -signal.SIGKILL
+    leftovers = sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".review.xlsx.textkit-"))
+    assert len(leftovers) == 1 and not leftovers[0].endswith(".part")  # a name the next run knows as ours
+    assert target.read_bytes() == b"the earlier workbook"  # the kill left the old file whole
+    write_file(target, lambda path: Path(path).write_bytes(b"the new workbook"))
+    assert target.read_bytes() == b"the new workbook"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["other.txt", "review.xlsx"]  # no debris
+
+
+def test_a_failing_single_file_writer_leaves_nothing(tmp_path):
+    from textkit.io.workbook import write_file
+
+    def broken(path):
+        Path(path).write_bytes(b"half")
+        raise OSError(28, "No space left on device")
+
+    with pytest.raises(InputError, match="No space left"):
+        write_file(tmp_path / "sample.xlsx", broken)
+    assert list(tmp_path.iterdir()) == []

@@ -11,23 +11,19 @@ import html5lib
 import openpyxl
 import pandas as pd
 import pytest
-from report_fixtures import DEMO, HOSTILE_GROUPS, write_crafted_survey
+from report_fixtures import DEMO, HOSTILE_ANSWERS, HOSTILE_GROUPS, HOSTILE_MARKUP
 
 from textkit.cli.main import main
-from textkit.io.export import FORMULA_TRIGGERS, neutralise_frame, neutralise_text, workbook_bytes
+from textkit.io.output import FORMULA_TRIGGERS, safe_cell, safe_frame
+from textkit.io.workbook import Sheet, workbook_bytes
 from textkit.pipeline import build_report, write_report
 
 XHTML = "{http://www.w3.org/1999/xhtml}"
 
 
 @pytest.fixture(scope="module")
-def crafted(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("crafted")
-    config = write_crafted_survey(folder)
-    report = build_report(config, summaries="market")
-    out = folder / "report"
-    write_report(report, out)
-    return config, report, out
+def crafted(crafted_report):
+    return crafted_report  # built once per session (tests/conftest.py), shared with the browser test
 
 
 @pytest.fixture(scope="module")
@@ -38,19 +34,19 @@ def crafted_book(crafted):
 # ---------------------------------------------------------------------------
 # Formula injection (the rule: OWASP "CSV injection" advice, common practice)
 # ---------------------------------------------------------------------------
-@pytest.mark.parametrize("text", ["=1+1", "+1", "-1", "@SUM(A1)", "\tx", "\rx"])
+@pytest.mark.parametrize("text", ["=1+1", "+1+1", "-1-A1", "@SUM(A1)", "\tx", "\rx"])
 def test_a_text_starting_with_a_trigger_gets_an_apostrophe(text):
-    assert neutralise_text(text) == "'" + text
+    assert safe_cell(text) == "'" + text
 
 
-@pytest.mark.parametrize("value", ["a=b", "plain", "", 5, -3.5, None])
+@pytest.mark.parametrize("value", ["a=b", "plain", "", "-1", "+2.5", 5, -3.5, None])
 def test_other_values_are_left_alone(value):
-    assert neutralise_text(value) == value
+    assert safe_cell(value) == value  # plain numbers written as text stay as they are
 
 
 def test_numbers_stay_numbers_in_a_neutralised_frame():
     frame = pd.DataFrame({"text": ["=x", "ok"], "number": [-1.5, 2.0]})
-    safe = neutralise_frame(frame)
+    safe = safe_frame(frame)
     assert safe["text"].tolist() == ["'=x", "ok"]
     assert safe["number"].tolist() == [-1.5, 2.0] and safe["number"].dtype.kind == "f"
 
@@ -104,7 +100,12 @@ def test_workbook_shows_flags_as_styles_and_explains_every_column(crafted_book):
 def test_workbook_bytes_depend_only_on_content():
     frame = pd.DataFrame({"estimate": [0.1, 0.2], "flag": ["ok", "caution"]})
     notes = pd.DataFrame({"sheet": ["t", "t"], "column": ["estimate", "flag"], "meaning": ["a", "b"]})
-    assert workbook_bytes({"t": frame}, notes, {"estimate"}) == workbook_bytes({"t": frame}, notes, {"estimate"})
+    def sheets(table):
+        return [Sheet("t", table, percent=frozenset({"estimate"})), Sheet("notes", notes, flag_column=None)]
+
+    first = workbook_bytes(sheets(frame))
+    assert first == workbook_bytes(sheets(frame.copy()))
+    assert first != workbook_bytes(sheets(frame.assign(estimate=[0.1, 0.3])))  # the content does change the bytes
 
 
 # ---------------------------------------------------------------------------
@@ -140,6 +141,27 @@ def test_no_hostile_string_becomes_markup(crafted, page):
         assert 'onmouseover="' not in raw
     for group in HOSTILE_GROUPS:
         assert any(group in text for text in texts), group  # every hostile value arrived, as text
+    if page == "index.html":  # hostile answers reach the page through the quotes (two per theme), as text
+        arrived = [fragment for fragment in HOSTILE_MARKUP if fragment in texts[0]]
+        assert len(arrived) >= 2, arrived
+
+
+def test_hostile_answers_are_quoted_as_text(crafted):
+    _, report, out = crafted
+    document, elements = _elements(out / "index.html")
+    table = next(e for e in elements if e.get("id") == "quotes-table")
+    cells = ["".join(cell.itertext()) for cell in table.iter(f"{XHTML}td")]
+    quoted = [c for c in cells if "zephyrgate" in c]
+    assert len(quoted) >= 2  # the crafted 'gate' theme's quotes are all hostile answers
+    assert any("<script>" in c or "<img id=injected" in c or "javascript:" in c for c in quoted)
+    assert not list(table.iter(f"{XHTML}script")) and not list(table.iter(f"{XHTML}img"))
+    assert not list(table.iter(f"{XHTML}a"))
+    # quotes.csv: the answers that start with a formula trigger are written with the text mark
+    rows = pd.read_csv(out / "quotes.csv", dtype=str, keep_default_na=False)
+    gate = rows[rows["theme"] == "gate"]["quote"].tolist()
+    assert gate and all(not q.startswith(FORMULA_TRIGGERS) for q in gate)
+    starts = {a.split(" ")[0].strip() for a in HOSTILE_ANSWERS if a.startswith(("=", "+", "-", "@"))}
+    assert any(q.startswith("'") and q[1:].split(" ")[0] in starts for q in gate), gate
 
 
 def test_page_is_self_contained_and_has_every_section(crafted):
@@ -151,15 +173,25 @@ def test_page_is_self_contained_and_has_every_section(crafted):
     assert policy and policy[0].startswith("default-src 'none'; img-src data:;")
     ids = {e.get("id") for e in elements}
     for table_id in ("summary-differences", "prevalence-low_point-table", "prevalence-high_point-table",
-                     "comparisons-table", "keyness-table"):
+                     "comparisons-table", "keyness-table", "quotes-table"):
         assert table_id in ids
     for section in ("summary", "comparisons", "keyness", "topics", "quotes", "method"):
         assert section in ids
-    # pieces this build lacks are named as such, not faked
-    for piece in report.manifest["not_available"]:
-        assert piece in ("topics", "charts", "quotes")
-    if report.manifest["not_available"]:
-        assert "not available in this build" in raw
+    assert "not available in this build" not in raw
+    # every chart is embedded (as an SVG data URI) and written as PNG and SVG
+    images = [e.get("src") for e in elements if e.tag == f"{XHTML}img"]
+    charts = report.manifest["charts"]
+    kinds = {name.split("__")[0] for name in charts}
+    assert {"prevalence", "differences", "keyness", "keyness-cloud", "cooccurrence"} <= kinds, kinds
+    assert len(images) == len(charts) and all(i.startswith("data:image/svg+xml;base64,") for i in images)
+    for name in charts:
+        assert (out / "charts" / f"{name}.svg").read_bytes()[:5] in (b"<?xml", b"<svg ")
+        assert (out / "charts" / f"{name}.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # topics: found in the uncoded answers, or the section says why not
+    if report.manifest["topics"] is None:
+        assert report.manifest["left_out"]["topics"] in html.unescape(raw)
+    else:
+        assert "topics-table" in ids and "k-selection" in kinds
 
 
 # ---------------------------------------------------------------------------
@@ -179,6 +211,9 @@ def test_every_summary_pdf_is_one_a4_page_naming_its_group(crafted):
         box = reader.pages[0].mediabox  # A4 is 595 x 842 points (ISO 216)
         assert abs(float(box.width) - 595.3) < 1 and abs(float(box.height) - 841.9) < 1
         assert _squash(summary.group) in _squash(reader.pages[0].extract_text())
+        assert 2 <= len(summary.quotes) <= 3, summary.group  # two or three of the group's quotes
+        first_quote = summary.quotes[0][0].split()[:4]
+        assert _squash(" ".join(first_quote)) in _squash(reader.pages[0].extract_text())
 
 
 def _squash(text: str) -> str:
@@ -252,11 +287,14 @@ def test_demo_end_to_end(tmp_path, capsys):
     out = tmp_path / "demo"
     assert main(["demo", "--out", str(out)]) == 0
     captured = capsys.readouterr()
-    for stage in ("code", "statistics", "keyness", "agreement", "summaries", "report", "write"):
+    for stage in ("code", "topics", "statistics", "keyness", "agreement", "quotes", "charts", "summaries", "report",
+                  "write"):
         assert re.search(rf"^\s+{stage}\s+\d+\.\d\d s$", captured.err, flags=re.M), stage
     for name in ("index.html", "tables.xlsx", "prevalence.csv", "comparisons.csv", "group_tests.csv",
-                 "keyness.csv", "agreement.csv", "manifest.json"):
+                 "keyness.csv", "agreement.csv", "quotes.csv", "topics.csv", "topic_terms.csv", "k_selection.csv",
+                 "manifest.json"):
         assert (out / name).stat().st_size > 0, name
+    assert len(list((out / "charts").glob("*.png"))) == len(list((out / "charts").glob("*.svg"))) >= 10
     markets = sorted(pd.read_csv(DEMO / "survey.csv", usecols=["market"])["market"].unique())
     assert sorted(p.stem for p in (out / "summaries").glob("*.pdf")) == markets
     for market in markets:

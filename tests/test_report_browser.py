@@ -17,7 +17,6 @@ import threading
 from pathlib import Path
 
 import pytest
-from report_fixtures import write_crafted_survey
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="Chromium is not installed (apt-get install chromium)")
@@ -84,13 +83,8 @@ def _chromium(page: Path, profile: Path, proxy: CountingProxy, *extra: str) -> s
 
 
 @pytest.fixture(scope="module")
-def crafted_page(tmp_path_factory):
-    from textkit.pipeline import build_report, write_report
-
-    folder = tmp_path_factory.mktemp("browser")
-    report = build_report(write_crafted_survey(folder), summaries="market")
-    write_report(report, folder / "report")
-    return folder / "report" / "index.html"
+def crafted_page(crafted_report):
+    return crafted_report[2] / "index.html"  # the crafted survey's report (tests/conftest.py)
 
 
 def test_the_proxy_sees_a_page_request(tmp_path):
@@ -108,6 +102,9 @@ def test_report_runs_no_injected_script_and_loads_nothing(crafted_page, tmp_path
     assert "<title>Survey report: survey.yaml</title>" in dom  # an injected script would have set 'pwned'
     assert "pwned" not in dom.split("</title>")[0]
     assert 'id="injected"' not in dom and "<img id=" not in dom
+    # hostile answers reached the page through the quotes, and stayed text after the scripts ran
+    assert 'id="quotes-table"' in dom and "zephyrgate" in dom
+    assert "&lt;script&gt;document" in dom or "&lt;img id=injected" in dom or "&lt;a href=" in dom
     # our own script did run (the Content-Security-Policy hash admits it): it shows the group filters
     assert '<label class="filter">' in dom and '<label class="filter" hidden' not in dom
     assert hosts == set() and shot_hosts == set()

@@ -506,6 +506,7 @@ class SurveyReport:
     manifest: dict
     timings: dict[str, float]
     summaries: list = field(default_factory=list)
+    inputs: list = field(default_factory=list)
 
 
 class _Stages:
@@ -553,6 +554,7 @@ def _report_statistics(survey: CodedSurvey):
     analysis = analyse(survey.coded, list(survey.themes), design, groups=list(roles.get("groups") or []),
                        wave=roles.get("wave"), method=DEFAULT_METHOD, rule=DEFAULT_RULE)
     facts = {"method": DEFAULT_METHOD, "rule": f"{DEFAULT_RULE.name} ({DEFAULT_RULE.origin})",
+             "rule_name": DEFAULT_RULE.name,
              "design": f"{design.n_strata} strata, {design.n_psus} PSUs, {design.df} df"}
     return analysis.prevalence(), analysis.comparisons(), analysis.group_tests(), facts
 
@@ -592,43 +594,90 @@ def _report_agreement(survey: CodedSurvey, hand_coded: Path) -> pd.DataFrame:
     return table
 
 
+#: The report's topics: NMF on the answers no theme codes, k chosen by stability over this range.
+REPORT_TOPIC_SCOPE = "uncoded"
+REPORT_TOPIC_K_RANGE = (3, 12)
+#: Quotes per theme in the report's quote section, and per theme and group for the one-page summaries.
+REPORT_QUOTES_PER_THEME = 2
+SUMMARY_QUOTES_PER_THEME = 1
+
+
+def _report_topics(survey: CodedSurvey):
+    """Topics of the answers no theme codes, or (None, reason) when they support none."""
+    from .errors import AnalysisError
+
+    try:
+        return find_survey_topics(survey, scope=REPORT_TOPIC_SCOPE, k_range=REPORT_TOPIC_K_RANGE), ""
+    except AnalysisError as error:
+        return None, f"no topics were found in the uncoded answers: {error.message}"
+
+
+def _report_quotes(survey: CodedSurvey, summaries: str | None) -> pd.DataFrame:
+    """Redacted quotes per question x theme, then (with ``summaries``) per theme within each of its groups."""
+    from .present.quotes import choose_quotes
+
+    labels = {theme.id: theme.label for theme in survey.lexicon.themes}
+    options = {"seed": int(survey.config.seed or 0), "labels": labels, "wave_var": survey.roles.get("wave")}
+    arguments = (survey.texts.tolist(), survey.stream, survey.coded, survey.evidence, list(survey.themes))
+    tables = [choose_quotes(*arguments, per_theme=REPORT_QUOTES_PER_THEME, **options)]
+    if summaries is not None:
+        tables.append(choose_quotes(*arguments, group_var=summaries, per_theme=SUMMARY_QUOTES_PER_THEME, **options))
+    return pd.concat(tables, ignore_index=True)
+
+
+def chart_group_variables(config: SurveyConfig, summaries: str | None) -> list[str]:
+    """Group variables the report draws charts for: the ``--summaries`` one (else the config's first
+    group) and the wave. Every group variable's numbers are in the tables; charts for all of them
+    would multiply the run time (``textkit charts`` draws any of them). Word clouds (the slowest
+    chart) are drawn for the wave comparison only: one two-sided cloud per question."""
+    first = summaries or next(iter(config.groups), None)
+    return [v for v in dict.fromkeys([first, config.wave]) if v]
+
+
+def _wanted_chart(spec, variables: list[str], wave: str | None) -> bool:
+    variable = spec.arguments.get("group_var")
+    if spec.kind == "keyness_cloud":
+        return variable == wave
+    return variable is None or variable == "(all)" or variable in variables
+
+
+def _report_charts(survey: CodedSurvey, tables: dict[str, pd.DataFrame], facts: dict,
+                   variables: list[str]) -> tuple[list, list[str]]:
+    """The report's charts (whole sample, and by ``variables``), drawn once as SVG and PNG: (Figures, font notes)."""
+    import os
+
+    from .present.catalogue import ResultTables, chart_text, plan_charts, render_charts
+    from .present.report import figure_from_spec
+
+    coded_manifest = {**survey.manifest, "themes": list(survey.themes)}
+    statistics = {"roles": survey.roles, "survey": survey.manifest.get("survey", {}),
+                  "settings": {"method": facts["method"], "confidence": 0.95, "rule": {"name": facts["rule_name"]}}}
+    manifests = {name: (statistics if name in ("prevalence", "comparisons") else coded_manifest) for name in tables}
+    results = ResultTables(tables={**tables, "coded": survey.coded}, manifests={**manifests, "coded": coded_manifest})
+    specs = [spec for spec in plan_charts(results, clouds=True) if _wanted_chart(spec, variables, survey.config.wave)]
+    wording = dict(survey.config.question_text)
+    texts = [chart_text(results, spec, wording) for spec in specs]
+    rendered, notes = render_charts(results, specs, texts, seed=int(survey.config.seed or 0),
+                                    jobs=min(2, os.cpu_count() or 1))
+    return [figure_from_spec(spec, text, rendered) for spec, text in zip(specs, texts, strict=True)], notes
+
+
 def _frame_csv(frame: pd.DataFrame) -> bytes:
-    from .io.export import neutralise_frame
+    from .io.output import safe_frame
 
-    return neutralise_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
-
-
-def _missing_pieces() -> dict[str, str]:
-    """Pieces the report does not include in this build, with the reason the report gives.
-
-    Charts, word clouds and quotes (``textkit.present.charts``/``clouds``/``quotes``) and topics
-    (``textkit.discover.topics``) are not yet assembled into the report, whether or not their
-    modules are installed; the report says so instead of leaving a stand-in.
-    """
-    import importlib.util
-
-    wanted = {"topics": ("textkit.discover.topics", "topics"),
-              "charts": ("textkit.present.charts", "charts and word clouds"),
-              "quotes": ("textkit.present.quotes", "the quote picker")}
-    missing = {}
-    for name, (module, what) in wanted.items():
-        present = importlib.util.find_spec(module) is not None
-        missing[name] = (f"{what.capitalize()} exist in this package but are not yet assembled into the report."
-                         if present else f"{what.capitalize()} are not in this build.")
-    return missing
+    return safe_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
 
 
 def _report_files(inputs, summaries: list) -> dict[str, bytes]:
-    from .io.export import workbook_bytes
+    from .io.workbook import Sheet, workbook_bytes
     from .present.report import PERCENT_COLUMNS, column_notes, render_report, report_tables
     from .present.summary import file_stems, summary_html, summary_pdf
 
     tables = report_tables(inputs)
-    files = {"index.html": render_report(inputs).encode("utf-8"),
-             "tables.xlsx": workbook_bytes(tables, column_notes(tables), PERCENT_COLUMNS)}
+    sheets = [Sheet(name, frame, percent=PERCENT_COLUMNS) for name, frame in tables.items()]
+    sheets.append(Sheet("notes", column_notes(tables), widths={"meaning": 90}, flag_column=None))
+    files = {"index.html": render_report(inputs).encode("utf-8"), "tables.xlsx": workbook_bytes(sheets)}
     files.update({f"{name}.csv": _frame_csv(frame) for name, frame in tables.items()})
-    if inputs.quotes is not None:
-        files["quotes.csv"] = _frame_csv(inputs.quotes)
     for figure in inputs.figures:
         files[f"charts/{figure.name}.svg"] = figure.svg
         if figure.png:
@@ -668,10 +717,16 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
     check_summary_variable(config, summaries)
     stages = _Stages(progress)
     survey = stages.run("code", code_survey, config)
-    missing = _missing_pieces()
+    topics, topics_reason = stages.run("topics", _report_topics, survey)
     prevalence, comparisons, tests, facts = stages.run("statistics", _report_statistics, survey)
     keyness = stages.run("keyness", _report_keyness, survey)
     agreement = None if hand_coded is None else stages.run("agreement", _report_agreement, survey, Path(hand_coded))
+    quotes = stages.run("quotes", _report_quotes, survey, summaries)
+    chart_tables = {"prevalence": prevalence, "comparisons": comparisons, "keyness": keyness}
+    if topics is not None:
+        chart_tables.update({"topics": topics.terms, "k_selection": topics.k_selection})
+    chart_variables = chart_group_variables(config, summaries)
+    figures, font_notes = stages.run("charts", _report_charts, survey, chart_tables, facts, chart_variables)
     labels = {theme.id: theme.label for theme in survey.lexicon.themes}
     manifest = survey.manifest
     facts.update({"responses": manifest["counts"]["responses"], "answers": manifest["counts"]["answered"],
@@ -679,33 +734,49 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
                   "lexicon_sha256": survey.lexicon.sha256, "survey": Path(config.survey).name,
                   "survey_sha256": manifest["survey"]["sha256"], "version": library_versions(("textkit",))
                   .get("textkit", "")})
+    missing = {"topics": topics_reason} if topics is None else {}
     inputs = ReportInputs(title=f"Survey report: {Path(config.path).name}", questions=list(config.questions),
                           prevalence=prevalence, comparisons=comparisons, group_tests=tests, labels=labels,
                           keyness=keyness, agreement=agreement,
-                          agreement_source=Path(hand_coded).name if hand_coded else "", missing=missing, facts=facts)
+                          agreement_source=Path(hand_coded).name if hand_coded else "",
+                          topics=None if topics is None else topics.summary,
+                          topic_terms=None if topics is None else topics.terms,
+                          k_selection=None if topics is None else topics.k_selection,
+                          quotes=quotes, figures=figures, missing=missing, facts=facts)
     pages = [] if summaries is None else stages.run(
         "summaries", group_summaries, prevalence, comparisons, summaries, labels, list(config.questions),
-        quotes=inputs.quotes, survey_title=inputs.title)
+        quotes=quotes, survey_title=inputs.title)
     files = stages.run("report", _report_files, inputs, pages)
     report_manifest = {
         "command": "report", "config": manifest["config"], "survey": manifest["survey"],
-        "lexicon": manifest["lexicon"], "roles": manifest["roles"], "notes": manifest["notes"],
+        "lexicon": manifest["lexicon"], "roles": manifest["roles"], "notes": [*manifest["notes"], *font_notes],
         "hand_coded": None if hand_coded is None else {"path": str(hand_coded), "sha256": file_sha256(hand_coded)},
         "settings": {"seed": config.seed, "summaries": summaries, "method": facts["method"], "rule": facts["rule"],
-                     "fdr_level": 0.05, "keyness_max_terms": 15},
-        "not_available": missing, "timings_seconds": stages.timings,
+                     "fdr_level": 0.05, "keyness_max_terms": 15, "topic_scope": REPORT_TOPIC_SCOPE,
+                     "topic_k_range": list(REPORT_TOPIC_K_RANGE),
+                     "chart_group_variables": chart_variables, "quotes_per_theme": REPORT_QUOTES_PER_THEME,
+                     "summary_quotes_per_theme_and_group": SUMMARY_QUOTES_PER_THEME},
+        "topics": None if topics is None else {"counts": topics.counts,
+                                               "k": {q: m.n_topics_ for q, m in topics.models.items()}},
+        "charts": sorted(figure.name for figure in figures), "left_out": missing,
+        "timings_seconds": stages.timings,
         "versions": library_versions(("textkit", "numpy", "scipy", "pandas", "scikit-learn", "nltk", "statsmodels",
                                       "matplotlib", "jinja2", "openpyxl", "wordcloud")),
     }
-    return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages)
+    inputs_read = [config.path, *survey.input_paths, *([hand_coded] if hand_coded else [])]
+    return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages,
+                        inputs=inputs_read)
 
 
 def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
-    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none."""
-    from .io.export import bytes_writer, write_tree
+    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none.
 
-    return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
-                      report.manifest)
+    Through :func:`textkit.io.output.write_outputs`: an output that would replace an input is refused.
+    """
+    from .io.output import bytes_writer
+
+    return write_outputs(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
+                         report.manifest, inputs=report.inputs)
 
 
 # --------------------------------------------------------------------------- the learned coder

@@ -30,7 +30,7 @@ def _run(config: Path, out_dir: Path, summaries: str | None, hand_coded: Path | 
     if quiet:
         return
     _print_stage("write", time.perf_counter() - write_started)
-    for name, reason in report.manifest["not_available"].items():
+    for name, reason in report.manifest["left_out"].items():
         click.echo(f"note: {name}: {reason}", err=True)
     click.echo(f"report: {len(report.files)} files in {time.perf_counter() - started:.1f} s -> {out_dir}; "
                f"open {out_dir / 'index.html'} first"

@@ -13,6 +13,6 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "read_table": "readers", "read_survey": "readers", "SurveyData": "readers", "answered_mask": "readers",
     "write_outputs": "output", "csv_writer": "output", "parquet_writer": "output", "text_writer": "output",
     "json_writer": "output", "file_sha256": "output",
-    "workbook_writer": "workbook", "read_coding_file": "workbook", "neutralise_cell": "workbook",
-    "xlsx_writer": "output", "safe_cell": "output", "check_hand_code_ids": "readers",
+    "Sheet": "workbook", "workbook_writer": "workbook", "workbook_bytes": "workbook", "write_file": "workbook",
+    "read_coding_file": "workbook", "safe_cell": "output", "safe_frame": "output", "check_hand_code_ids": "readers",
 })

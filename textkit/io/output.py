@@ -130,17 +130,6 @@ def csv_writer(frame: Any, **to_csv_options: Any) -> Writer:
     return lambda path: safe_frame(frame).to_csv(path, index=False, **options)
 
 
-def xlsx_writer(sheets: Mapping[str, Any]) -> Writer:
-    """Writer for an Excel workbook, one sheet per DataFrame, text cells through :func:`safe_cell`."""
-    def write(path: Path) -> None:
-        import pandas as pd
-
-        with pd.ExcelWriter(path, engine="openpyxl") as book:
-            for name, frame in sheets.items():
-                safe_frame(frame).to_excel(book, sheet_name=str(name)[:31], index=False)
-    return write
-
-
 def parquet_writer(frame: Any) -> Writer:
     """Writer for a DataFrame as Parquet without the index (a data format: cells kept as they are)."""
     return lambda path: frame.to_parquet(path, index=False)
@@ -244,7 +233,7 @@ def write_outputs(out_dir: str | Path, files: Mapping[str, Writer], manifest: Ma
         full["files"] = sorted(plan)
         command = full.get("command")
         plan["manifest.json"] = json_writer(full)
-    _clean_stale(out)
+    clean_stale(out)
     sources = [Path(p).expanduser() for p in inputs if p is not None and str(p)]
     _refuse_collisions(out, list(plan), sources, whole=False)
     mode = _mode(out, set(plan), command)
@@ -274,6 +263,7 @@ def _mode(out: Path, names: set[str], command: str | None) -> str:
     if previous_command is not None and previous_command != command:
         raise InputError(f"the folder holds the result of 'textkit {previous_command}' (its manifest.json "
                          "would be replaced); choose another --out folder", source=out)
+    listed |= {str(name).split("/")[0] for name in listed}  # a subfolder of the result belongs to it
     return "replace" if present <= listed | {"manifest.json"} else "merge"
 
 
@@ -302,6 +292,8 @@ def _fail(out: Path, name: str | None, error: OSError) -> InputError:
 def _write_all(folder: Path, plan: Mapping[str, Writer], out: Path) -> None:
     for name, writer in plan.items():
         try:
+            if "/" in name:
+                (folder / name).parent.mkdir(parents=True, exist_ok=True)
             writer(folder / name)
         except OSError as error:
             raise _fail(out, name, error) from None
@@ -319,13 +311,28 @@ def _temporary_folder(parent: Path, stem: str, out: Path) -> Path:
     return folder
 
 
+def temporary_file(target: Path) -> Path:
+    """An empty file beside ``target`` under the temporary name :func:`clean_stale` recognises.
+
+    The name is ``.NAME.textkit-PID-new-*``: once process PID is gone, the next
+    :func:`clean_stale` of ``target`` removes it. Its mode is what a plain
+    ``open`` would give (``mkstemp`` makes 0600).
+    """
+    handle, name = tempfile.mkstemp(prefix=f".{target.name}{_OURS}{os.getpid()}-new-", dir=target.parent)
+    os.close(handle)
+    umask = os.umask(0o022)
+    os.umask(umask)
+    os.chmod(name, 0o666 & ~umask)
+    return Path(name)
+
+
 def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Path]:
     staging: Path | None = None
     try:
-        with _signals_held():  # so that a signal cannot strike between creating and knowing the folder
+        with signals_held():  # so that a signal cannot strike between creating and knowing the folder
             staging = _temporary_folder(out.parent, f".{out.name}", out)
         _write_all(staging, plan, out)
-        with _signals_held():
+        with signals_held():
             if replace:
                 retired = staging.with_name(staging.name.replace("-new-", "-old-", 1))
                 os.rename(out, retired)
@@ -354,11 +361,13 @@ def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Pat
 def _merge_into(out: Path, plan: Mapping[str, Writer]) -> list[Path]:
     staging: Path | None = None
     try:
-        with _signals_held():
+        with signals_held():
             staging = _temporary_folder(out, "", out)
         _write_all(staging, plan, out)
-        with _signals_held():
+        with signals_held():
             for name in plan:
+                if "/" in name:
+                    (out / name).parent.mkdir(parents=True, exist_ok=True)
                 os.replace(staging / name, out / name)
     except OSError as error:
         raise _fail(out, None, error) from None
@@ -378,7 +387,7 @@ def _alive(pid: int) -> bool:
     return True
 
 
-def _clean_stale(out: Path) -> None:
+def clean_stale(out: Path) -> None:
     """Remove what interrupted runs (now gone) left beside or inside ``out``.
 
     A retired old result whose swap was cut short is put back when ``out`` is missing.
@@ -395,22 +404,27 @@ def _clean_stale(out: Path) -> None:
             continue
         for entry in sorted(entries, key=lambda e: e.name):
             match = pattern.search(entry.name[len(prefix) - len(_OURS):])
-            if match is None or _alive(int(match.group(1))) or not entry.is_dir():
+            if match is None or _alive(int(match.group(1))):
+                continue
+            if not entry.is_dir():  # a single file's temporary (textkit.io.workbook.write_file)
+                with contextlib.suppress(OSError):
+                    entry.unlink()
                 continue
             if match.group(2) == "old" and folder == out.parent and not out.exists():
                 with contextlib.suppress(OSError):
                     os.rename(entry, out)
                     continue
             shutil.rmtree(entry, ignore_errors=True)
-    if out.is_dir():
+    legacy = [(out, "."), (out.parent, f".{out.name}.")]  # ``.NAME.*.part`` of writers before this one
+    for folder, prefix in legacy if out.is_dir() else legacy[1:]:
         with contextlib.suppress(OSError):
-            for entry in out.iterdir():
-                if entry.name.startswith(".") and entry.name.endswith(".part") and entry.is_file():
+            for entry in folder.iterdir():
+                if entry.name.startswith(prefix) and entry.name.endswith(".part") and entry.is_file():
                     entry.unlink(missing_ok=True)
 
 
 @contextlib.contextmanager
-def _signals_held() -> Iterator[None]:
+def signals_held() -> Iterator[None]:
     """Hold SIGINT and SIGTERM back while the block runs (main thread only), then deliver them."""
     if threading.current_thread() is not threading.main_thread():
         yield

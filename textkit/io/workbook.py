@@ -1,15 +1,23 @@
-"""Excel workbooks for people: review sheets, hand-coding samples, and reading them back.
+"""Excel workbooks: the one XLSX writer of textkit, atomic single files, and reading sheets back.
 
-:func:`workbook_writer` gives a :data:`~textkit.io.output.Writer` for a workbook of
-several sheets, each a DataFrame with a frozen header row and an autofilter;
-:func:`write_file` puts one file in place atomically (a temporary file renamed
-into place), refusing to overwrite a file the run reads. :func:`read_coding_file`
+:func:`workbook_bytes` (and :func:`workbook_writer`, its
+:data:`~textkit.io.output.Writer`) is the only XLSX writer in the package: the
+report's ``tables.xlsx``, the review sheet, the hand-coding sample and every
+other workbook. Each :class:`Sheet` gets a bold, frozen header row with an
+autofilter, column widths from its header and first values, optional wrapped
+columns, proportions formatted as percentages, and rows styled by their
+publishing flag (``caution`` shaded, ``suppress`` greyed and italic). Notes and
+definitions are sheets like any other. Every text cell goes through
+:func:`textkit.io.output.safe_cell`, the project's one formula rule (numbers
+stay numbers). The bytes depend only on the content: the workbook's creation
+and modification times and the zip entries' dates are fixed.
+
+:func:`write_file` puts one file in place atomically: it is written under a
+temporary name beside it (``.NAME.textkit-PID-new-*``, the mark
+:mod:`textkit.io.output` uses for folders) and renamed into place when
+complete; a run killed outright leaves that name behind, and the next write of
+the same file removes it once the process is gone. :func:`read_coding_file`
 reads a filled CSV or workbook back, naming the sheet in every error.
-
-Every text cell goes through :func:`neutralise_cell` first, so an answer such as
-``=HYPERLINK(...)`` is shown as text and never runs as a formula. The bytes are
-deterministic: the workbook's creation and modification times and the zip
-entries' dates are fixed.
 """
 
 from __future__ import annotations
@@ -17,35 +25,34 @@ from __future__ import annotations
 import io
 import os
 import re
-import tempfile
 import zipfile
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..errors import InputError
-from .output import FORMULA_TRIGGERS, safe_cell
+from .output import (
+    FORMULA_TRIGGERS,
+    TEXT_MARK,
+    Writer,
+    clean_stale,
+    safe_cell,
+    safe_frame,
+    signals_held,
+    temporary_file,
+)
 
-#: First characters that make a spreadsheet read a cell as a formula (common practice: the
-#: OWASP guidance on CSV injection lists these); the one rule lives in textkit.io.output.
-_FORMULA_TRIGGERS = FORMULA_TRIGGERS
 _FIXED_ZIP_DATE = (1980, 1, 1, 0, 0, 0)
-_FIXED_TIMESTAMP = "2000-01-01T00:00:00Z"
-
-
-def neutralise_cell(value: Any) -> Any:
-    """A text cell that a spreadsheet would run as a formula, made inert with a leading apostrophe.
-
-    The rule is :func:`textkit.io.output.safe_cell`, the one every CSV, TSV and XLSX
-    writer uses (control characters made visible too). Non-text values are returned unchanged.
-    """
-    return safe_cell(value)
+_FIXED_TIMESTAMP = b"2000-01-01T00:00:00Z"
+#: Fill and font of a row by its flag value.
+_FLAG_STYLES = {"caution": ("FFF2CC", False, None), "suppress": ("E7E6E6", True, "7F7F7F")}
 
 
 def restore_cell(value: Any) -> Any:
-    """Undo :func:`neutralise_cell` on a value read back from a sheet textkit wrote."""
-    if isinstance(value, str) and len(value) > 1 and value[0] == "'" and value[1:].startswith(_FORMULA_TRIGGERS):
+    """Undo :func:`~textkit.io.output.safe_cell`'s mark on a value read back from a sheet textkit wrote."""
+    if (isinstance(value, str) and len(value) > 1 and value[0] == TEXT_MARK
+            and value[1:].startswith(FORMULA_TRIGGERS)):
         return value[1:]
     return value
 
@@ -57,7 +64,7 @@ class Sheet:
     Attributes
     ----------
     name : str
-        Sheet name (Excel allows 31 characters).
+        Sheet name (made Excel-legal and unique: 31 characters, no ``[]:*?/\\``).
     frame : DataFrame
         Header row from its columns, one row per record; may have no rows.
     widths : dict of str to float
@@ -66,7 +73,11 @@ class Sheet:
     wrap : tuple of str
         Columns whose text wraps (long answers).
     blank_rows : int
-        Extra empty rows with borders left below the data for people to fill in.
+        Empty rows below the data that the autofilter still covers (for people to fill in).
+    percent : frozenset of str
+        Columns holding proportions (0-1), shown as percentages (``0.0%``).
+    flag_column : str or None, default "flag"
+        Rows whose value in this column is ``caution`` or ``suppress`` are styled.
     """
 
     name: str
@@ -74,51 +85,89 @@ class Sheet:
     widths: dict[str, float] = field(default_factory=dict)
     wrap: tuple[str, ...] = ()
     blank_rows: int = 0
+    percent: frozenset[str] = frozenset()
+    flag_column: str | None = "flag"
 
 
-def _fill_sheet(sheet, spec: Sheet) -> None:
-    from openpyxl.styles import Alignment, Font
-    from openpyxl.utils import get_column_letter
+def _sheet_title(name: str, used: set[str]) -> str:
+    """An Excel-legal, unique sheet title (31 characters, no ``[]:*?/\\``)."""
+    cleaned = "".join("_" if ch in '[]:*?/\\' else ch for ch in str(name))[:31] or "sheet"
+    title, suffix = cleaned, 2
+    while title.lower() in used:
+        title = f"{cleaned[:28]}~{suffix}"
+        suffix += 1
+    used.add(title.lower())
+    return title
 
-    frame = spec.frame
-    columns = [str(c) for c in frame.columns]
-    sheet.append([neutralise_cell(c) for c in columns])
-    for cell in sheet[1]:
-        cell.font = Font(bold=True)
-    for record in frame.itertuples(index=False, name=None):
-        sheet.append([_cell_value(v) for v in record])
-    n_rows = len(frame) + spec.blank_rows + 1
-    if columns:
-        sheet.freeze_panes = "A2"
-        sheet.auto_filter.ref = f"A1:{get_column_letter(len(columns))}{max(n_rows, 2)}"
-    for index, name in enumerate(columns, start=1):
-        letter = get_column_letter(index)
-        if name in spec.widths:
-            width = spec.widths[name]
-        else:
-            sample = [len(str(v)) for v in frame.iloc[:50, index - 1].tolist() if v is not None] if len(frame) else []
-            width = min(60, max([len(name) + 2, *[s + 1 for s in sample]]))
-        sheet.column_dimensions[letter].width = width
-        if name in spec.wrap:
-            for row in range(2, len(frame) + 2):
-                sheet.cell(row=row, column=index).alignment = Alignment(wrap_text=True, vertical="top")
+
+def _width(frame: Any, position: int, name: str, widths: dict[str, float]) -> float:
+    if name in widths:
+        return widths[name]
+    sample = [len(str(v)) for v in frame.iloc[:50, position].tolist() if v is not None] if len(frame) else []
+    return min(60, max([len(name) + 2, 10, *[s + 1 for s in sample]]))
 
 
 def _cell_value(value: Any) -> Any:
+    """A cell as written: text through :func:`safe_cell`; missing and infinite numbers empty."""
+    import math
+
     import numpy as np
     import pandas as pd
 
     if isinstance(value, np.generic):
         value = value.item()
     if isinstance(value, str):
-        return neutralise_cell(value)
-    if value is None or pd.isna(value):
+        return safe_cell(value)
+    if value is None or value is pd.NA or value is pd.NaT or (isinstance(value, float) and not math.isfinite(value)):
         return None
     return value
 
 
-def _fix_timestamps(data: bytes) -> bytes:
-    """Rewrite a saved workbook with fixed dates so identical content gives identical bytes."""
+def _fill_sheet(sheet: Any, spec: Sheet) -> None:
+    """Fill a write-only sheet: bold frozen header with autofilter, widths, percentages, wraps, flag styles."""
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Alignment, Font, PatternFill
+    from openpyxl.utils import get_column_letter
+
+    frame = spec.frame
+    columns = [str(c) for c in frame.columns]
+    if columns:
+        sheet.freeze_panes = "A2"
+        sheet.auto_filter.ref = f"A1:{get_column_letter(len(columns))}{max(len(frame) + spec.blank_rows + 1, 2)}"
+    for index, name in enumerate(columns, start=1):
+        sheet.column_dimensions[get_column_letter(index)].width = _width(frame, index - 1, name, spec.widths)
+    bold = Font(bold=True)
+    header = [WriteOnlyCell(sheet, safe_cell(name)) for name in columns]
+    for cell in header:
+        cell.font = bold
+    sheet.append(header)
+    styles = {flag: (PatternFill("solid", fgColor=fill), Font(italic=italic, color=colour))
+              for flag, (fill, italic, colour) in _FLAG_STYLES.items()}
+    wrap = Alignment(wrap_text=True, vertical="top")
+    percent = [name in spec.percent for name in columns]
+    wrapped = [name in spec.wrap for name in columns]
+    flag_at = columns.index(spec.flag_column) if spec.flag_column in columns else None
+    for record in frame.itertuples(index=False, name=None):
+        style = styles.get(str(record[flag_at])) if flag_at is not None else None
+        cells = []
+        for value, is_percent, is_wrapped in zip(record, percent, wrapped, strict=True):
+            value = _cell_value(value)
+            if not (is_percent or is_wrapped or style):
+                cells.append(value)  # a plain value needs no cell object
+                continue
+            cell = WriteOnlyCell(sheet, value)
+            if is_percent:
+                cell.number_format = "0.0%"
+            if is_wrapped:
+                cell.alignment = wrap
+            if style:
+                cell.fill, cell.font = style
+            cells.append(cell)
+        sheet.append(cells)
+
+
+def _fixed_zip(data: bytes) -> bytes:
+    """Rewrite a saved workbook with fixed dates (openpyxl stamps the save time), so same content, same bytes."""
     source = zipfile.ZipFile(io.BytesIO(data))
     out = io.BytesIO()
     with zipfile.ZipFile(out, "w", compression=zipfile.ZIP_DEFLATED) as target:
@@ -126,52 +175,50 @@ def _fix_timestamps(data: bytes) -> bytes:
             content = source.read(info.filename)
             if info.filename == "docProps/core.xml":
                 content = re.sub(rb"(<dcterms:(?:created|modified)[^>]*>)[^<]*(</dcterms:)",
-                                 rb"\g<1>" + _FIXED_TIMESTAMP.encode() + rb"\g<2>", content)
+                                 rb"\g<1>" + _FIXED_TIMESTAMP + rb"\g<2>", content)
             entry = zipfile.ZipInfo(info.filename, date_time=_FIXED_ZIP_DATE)
             entry.compress_type = zipfile.ZIP_DEFLATED
-            entry.external_attr = 0o600 << 16
+            entry.external_attr = 0o644 << 16
             target.writestr(entry, content)
     return out.getvalue()
 
 
-def workbook_writer(sheets: Sequence[Sheet]) -> Callable[[Path], None]:
-    """Writer (takes the path to write) of an .xlsx workbook with the given sheets, in order."""
+def workbook_bytes(sheets: Sequence[Sheet]) -> bytes:
+    """The .xlsx workbook of ``sheets`` (in order) as bytes; see the module docstring for the layout."""
+    from openpyxl import Workbook
 
-    def write(path: Path) -> None:
-        from openpyxl import Workbook
-
-        book = Workbook()
-        book.remove(book.active)
-        for spec in sheets:
-            _fill_sheet(book.create_sheet(spec.name[:31]), spec)
-        buffer = io.BytesIO()
-        book.save(buffer)
-        Path(path).write_bytes(_fix_timestamps(buffer.getvalue()))
-
-    return write
+    book = Workbook(write_only=True)
+    used: set[str] = set()
+    for spec in sheets:
+        _fill_sheet(book.create_sheet(_sheet_title(spec.name, used)), spec)
+    book.properties.creator = "textkit"
+    buffer = io.BytesIO()
+    book.save(buffer)
+    return _fixed_zip(buffer.getvalue())
 
 
-def csv_for_spreadsheets_writer(frame: Any) -> Callable[[Path], None]:
-    """Writer of a UTF-8 CSV (with byte-order mark, so Excel reads the accents) whose text cells are neutralised."""
-
-    def write(path: Path) -> None:
-        safe = frame.copy()
-        for column in safe.columns:
-            if _is_text(safe[column]):
-                safe[column] = safe[column].map(neutralise_cell)
-        safe.to_csv(path, index=False, encoding="utf-8-sig")
-
-    return write
+def workbook_writer(sheets: Sequence[Sheet]) -> Writer:
+    """Writer (takes the path to write) of :func:`workbook_bytes`, built when the writer runs."""
+    return lambda path: Path(path).write_bytes(workbook_bytes(sheets))
 
 
-def write_file(path: str | Path, writer: Callable[[Path], None], *, inputs: Iterable[str | Path] = ()) -> Path:
-    """Write one file atomically: to a temporary file beside it, renamed into place when complete.
+def csv_for_spreadsheets_writer(frame: Any) -> Writer:
+    """Writer of a UTF-8 CSV (with byte-order mark, so Excel reads the accents) whose text cells are made safe."""
+    return lambda path: safe_frame(frame).to_csv(path, index=False, encoding="utf-8-sig")
+
+
+def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path] = ()) -> Path:
+    """Write one file atomically: under a temporary name beside it, renamed into place when complete.
+
+    What a killed earlier run left beside ``path`` (its temporary file, or a
+    ``.NAME.*.part`` file of older versions) is removed first, once that run's
+    process is gone. SIGINT and SIGTERM arriving during the rename are held back.
 
     Raises
     ------
     InputError
         When ``path`` is one of ``inputs`` (a run never overwrites what it reads) or
-        is a folder, or its folder cannot be created.
+        is a folder, or its folder cannot be created or written.
     """
     target = Path(path).expanduser()
     resolved = target.resolve()
@@ -185,18 +232,20 @@ def write_file(path: str | Path, writer: Callable[[Path], None], *, inputs: Iter
         target.parent.mkdir(parents=True, exist_ok=True)
     except OSError as error:
         raise InputError(f"cannot create the output folder: {error.strerror}", source=target.parent) from error
-    handle, temp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
-    os.close(handle)
-    temp = Path(temp_name)
+    clean_stale(target)
+    temp: Path | None = None
     try:
+        with signals_held():  # so that a signal cannot strike between creating and knowing the file
+            temp = temporary_file(target)
         writer(temp)
-        umask = os.umask(0o022)
-        os.umask(umask)
-        os.chmod(temp, 0o666 & ~umask)
-    except BaseException:
-        temp.unlink(missing_ok=True)
-        raise
-    os.replace(temp, target)
+        with signals_held():
+            os.replace(temp, target)
+            temp = None
+    except OSError as error:
+        raise InputError(f"cannot write the file: {error.strerror or error}", source=target) from None
+    finally:
+        if temp is not None:
+            temp.unlink(missing_ok=True)
     return target
 
 
@@ -245,7 +294,7 @@ def read_coding_file(path: str | Path, *, sheets: Sequence[str] = (), optional_s
     -------
     list of SheetData
         Cells as read (CSV: text; workbook: numbers and text), with values written by
-        :func:`neutralise_cell` restored.
+        :func:`~textkit.io.output.safe_cell` restored.
     """
     from .readers import read_table
 

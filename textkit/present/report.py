@@ -1,10 +1,10 @@
 """The survey report: sections assembled from result tables and figures, rendered to one HTML file.
 
 A report is a list of :class:`Section` built from :class:`ReportInputs` (the
-tidy tables of the stages below, plus whatever figures, topics and quotes a
-build has). Each section builder takes what exists: a piece this build does
-not have becomes a section that says so in the report ("not available in this
-build"), never an empty stand-in.
+tidy tables of the stages below, the charts drawn from them, the topics of the
+uncoded answers and the picked quotes). A piece a run could not make (no topics
+in too few uncoded answers) becomes a note in its section saying why, never an
+empty stand-in.
 
 Safety: every value that reaches the page goes through jinja2 with
 autoescaping on; figures are embedded as ``data:`` image URIs (a script inside
@@ -79,7 +79,6 @@ COLUMN_NOTES: dict[str, str] = {
     "chi2_q_value": "Benjamini-Hochberg q-value of the first-order test.",
     "reference": "What the group is compared with ('(rest)': everyone else).",
     "term": "Word or phrase (1-3 words) from the answers.",
-    "n_words": "Number of words in the term.",
     "respondents_group": "Unweighted answers of the group using the term.",
     "respondents_reference": "Unweighted answers of the reference using the term.",
     "rate_group": "Weighted share of the group's answers using the term.",
@@ -112,7 +111,29 @@ COLUMN_NOTES: dict[str, str] = {
     "responses_coded": "Answers coded with the theme.",
     "answered": "Answers to the question (the base).",
     "share": "Unweighted share of the answers coded with the theme.",
-    "weighted_share": "Weighted share of the answers coded with the theme.",
+    "weighted_share": "Weighted share of the answers coded with the theme (for a topic: of the question's answers).",
+    "rank": "Order within its list (1 = first: the most typical quote, the heaviest term of a topic).",
+    "response_id": "Respondent id of the quoted answer.",
+    "quote": "The answer as quoted: redacted (contact details, links, long digit runs, likely names).",
+    "n_words": "Number of words in the term, or in the quoted answer.",
+    "typicality": "How typical the answer is of the theme (cosine to the theme's TF-IDF centre, 0-1).",
+    "evidence": "The text that matched the theme in the answer (redacted like the quote).",
+    "evidence_start": "Character offset where the theme's first match starts in the answer (-1: none).",
+    "evidence_end": "Character offset where the theme's last match ends in the answer (-1: none).",
+    "redactions": "Number of pieces of the answer replaced by redaction.",
+    "scope": "The answers the topics were found in (uncoded: answers no theme codes).",
+    "topic": "Topic id (numbered across questions).",
+    "n_answers": "Answers of the pool coded with the topic (its loading at least half the answer's largest).",
+    "coherence": "NPMI coherence of the topic's top terms (Bouma 2009; -1 to 1, higher: terms occur together).",
+    "stability": "Agreement of the top terms across refits on subsamples (average Jaccard, 0-1; Greene et al. 2014).",
+    "top_theme": "Lexicon theme whose answers overlap the topic most.",
+    "top_theme_overlap": "Share of the topic's answers also coded with that theme.",
+    "top_group_var": "Group variable of the group most over-represented in the topic.",
+    "top_group": "Group most over-represented in the topic.",
+    "top_group_z": "z-score of that over-representation (log-odds with a Dirichlet prior).",
+    "weight": "Weight of the term in the topic (NMF component).",
+    "k": "Number of topics tried.",
+    "chosen": "Whether this k was chosen (peak stability).",
 }
 
 #: Columns holding proportions (0-1): percentages in the report and the workbook.
@@ -121,7 +142,6 @@ PERCENT_COLUMNS = frozenset({"estimate", "se", "ci_low", "ci_high", "estimate_a"
 
 ALL = "(all)"
 REST = "(rest)"
-NOT_AVAILABLE = "not available in this build"
 #: q-value below which a difference is reported as surviving the false discovery rate control.
 FDR_LEVEL = 0.05
 
@@ -147,10 +167,25 @@ class Figure:
     svg: bytes
     png: bytes = b""
     section: str = "prevalence"
+    question: str = ""
 
     @property
     def data_uri(self) -> str:
         return "data:image/svg+xml;base64," + base64.b64encode(self.svg).decode("ascii")
+
+
+#: Report section of each chart kind of :mod:`textkit.present.catalogue`.
+CHART_SECTIONS = {"prevalence": "prevalence", "cooccurrence": "prevalence", "differences": "comparisons",
+                  "keyness": "keyness", "keyness_panels": "keyness", "keyness_cloud": "keyness",
+                  "topic_terms": "topics", "k_selection": "topics"}
+
+
+def figure_from_spec(spec: Any, text: Any, rendered: dict[str, bytes]) -> Figure:
+    """The :class:`Figure` of a drawn chart (``spec`` a ChartSpec, ``text`` its ChartText,
+    ``rendered`` the file name -> bytes of :func:`textkit.present.catalogue.render_charts`)."""
+    return Figure(name=spec.stem, title=text.title, caption=text.caption, svg=rendered[f"{spec.stem}.svg"],
+                  png=rendered.get(f"{spec.stem}.png", b""), section=CHART_SECTIONS[spec.kind],
+                  question=str(spec.arguments.get("question", "")))
 
 
 @dataclass
@@ -173,7 +208,7 @@ class Section:
     """One part of the report: blocks in reading order, each ``(kind, payload)``.
 
     kinds: ``text`` (str), ``items`` (list of str), ``table`` (TableView), ``figure`` (Figure),
-    ``missing`` (str: what this build does not have).
+    ``missing`` (str: a piece this run could not make, and why).
     """
 
     id: str
@@ -205,9 +240,14 @@ class ReportInputs:
         Theme id -> label.
     agreement : DataFrame or None
         :func:`textkit.coding.agreement.compare_with_hand_codes` on a hand-coded sample.
-    topics, quotes : DataFrame or None
-        Topic and quote tables when this build has them.
+    topics, topic_terms, k_selection : DataFrame or None
+        :class:`textkit.discover.topic_tables.TopicResult` ``summary``, ``terms`` and
+        ``k_selection`` of the uncoded answers (None when they support no topics).
+    quotes : DataFrame or None
+        :func:`textkit.present.quotes.choose_quotes` rows (``QUOTE_COLUMNS``).
     figures : list of Figure
+    missing : dict
+        Piece -> why this run could not make it.
     """
 
     title: str
@@ -220,6 +260,8 @@ class ReportInputs:
     agreement: pd.DataFrame | None = None
     agreement_source: str = ""
     topics: pd.DataFrame | None = None
+    topic_terms: pd.DataFrame | None = None
+    k_selection: pd.DataFrame | None = None
     quotes: pd.DataFrame | None = None
     figures: list[Figure] = field(default_factory=list)
     missing: dict = field(default_factory=dict)
@@ -372,11 +414,9 @@ _CHANGE_SPEC = [("question", "Question", "text"), ("label", "Theme", "text"), ("
                 ("q_value", "q (BH)", "q")]
 
 
-def _figures_or_missing(section: Section, figures: Sequence[Figure], what: str) -> None:
+def _add_figures(section: Section, figures: Sequence[Figure]) -> None:
     for figure in figures:
         section.add("figure", figure)
-    if not figures:
-        section.add("missing", f"{what}: {NOT_AVAILABLE}.")
 
 
 def summary_section(inputs: ReportInputs) -> Section:
@@ -415,8 +455,7 @@ def summary_section(inputs: ReportInputs) -> Section:
 def prevalence_section(inputs: ReportInputs, question: str) -> Section:
     """One question: its prevalence charts (when drawn) and table by group, waves pooled."""
     section = Section(f"prevalence-{question}", f"Question: {question}")
-    _figures_or_missing(section, [f for f in inputs.figures if f.section == "prevalence" and question in f.name],
-                        "Prevalence charts")
+    _add_figures(section, [f for f in inputs.figures if f.section == "prevalence" and f.question == question])
     rows = inputs.prevalence[(inputs.prevalence["question"] == question) & (inputs.prevalence["wave"] == ALL)]
     rows = _with_labels(rows, inputs.labels)
     rows["ci"] = _ci(rows)
@@ -433,6 +472,7 @@ def comparisons_section(inputs: ReportInputs) -> Section:
     rows = significant(versus_rest(inputs.comparisons, prevalence=inputs.prevalence))
     rows = _with_labels(rows, inputs.labels)
     rows["ci"] = _ci(rows)
+    _add_figures(section, [f for f in inputs.figures if f.section == "comparisons"])
     section.add("text", f"Each group against the rest of its group variable; shown: the {len(rows)} differences "
                 f"with Benjamini-Hochberg q < {FDR_LEVEL} whose group estimate is not suppressed (rows whose group "
                 "estimate is flagged caution are shaded). Every comparison (pairs of groups, waves) is in "
@@ -444,10 +484,9 @@ def comparisons_section(inputs: ReportInputs) -> Section:
 def keyness_section(inputs: ReportInputs, per_side: int = 8) -> Section:
     """Key terms of each group against the rest (and wave against wave), with clouds when drawn."""
     section = Section("keyness", "Words that set groups apart")
-    _figures_or_missing(section, [f for f in inputs.figures if f.section == "keyness"],
-                        "Word clouds and keyness charts")
+    _add_figures(section, [f for f in inputs.figures if f.section == "keyness"])
     if inputs.keyness is None or inputs.keyness.empty:
-        return section.add("missing", f"Keyness table: {NOT_AVAILABLE}.")
+        return section.add("text", "No group variable has two or more groups with answers: no key terms.")
     table = inputs.keyness
     table = table[(table["z"] > 0) & (table["q_value"] < FDR_LEVEL) & (table["within_theme"].fillna("") == "")]
     table = table.sort_values(["question", "group_var", "group", "z"], ascending=[True, True, True, False],
@@ -464,16 +503,45 @@ def keyness_section(inputs: ReportInputs, per_side: int = 8) -> Section:
                                            group=lambda r: f"{r['group_var']}: {r['group']}"))
 
 
-def optional_section(id: str, title: str, frame: pd.DataFrame | None, spec: Sequence[tuple[str, str, str]],
-                     intro: str, figures: Sequence[Figure] = (), reason: str = "") -> Section:
-    """A section over an optional table: the table when present, else a note that this build lacks it."""
-    section = Section(id, title)
-    if frame is None:
-        return section.add("missing", f"{title}: {NOT_AVAILABLE}. {reason}".strip())
-    for figure in figures:
-        section.add("figure", figure)
-    section.add("text", intro)
-    return section.add("table", table_view(frame, f"{id}-table", title, [s for s in spec if s[0] in frame.columns]))
+def topics_section(inputs: ReportInputs, n_terms: int = 8) -> Section:
+    """Topics of the answers no theme codes: size, top terms, coherence and stability, the k-selection charts."""
+    section = Section("topics", "Emerging topics in the uncoded answers")
+    if inputs.topics is None:
+        return section.add("missing", inputs.missing.get("topics", "No topics were found in the uncoded answers."))
+    section.add("text", "Topics found by NMF in the answers no lexicon theme codes; the number of topics k of each "
+                "question is the one whose top terms are most stable across refits on subsamples. A topic is a "
+                "candidate theme, not a finding: read its answers (topic_terms.csv, the topics sheet) before "
+                "adding it to the lexicon.")
+    summary = inputs.topics.copy()
+    if inputs.topic_terms is not None and len(inputs.topic_terms):
+        terms = inputs.topic_terms.sort_values(["topic", "rank"], kind="stable")
+        top = terms.groupby("topic", sort=False)["term"].apply(lambda t: ", ".join(map(str, t.head(n_terms))))
+        summary["top_terms"] = summary["topic"].map(top).fillna("")
+    spec = [("question", "Question", "text"), ("topic", "Topic", "text"), ("top_terms", "Top terms", "text"),
+            ("n_answers", "Answers", "int"), ("weighted_share", "Share of answers", "pct"),
+            ("coherence", "Coherence", "num"), ("stability", "Stability", "num"),
+            ("top_theme", "Nearest theme", "text")]
+    section.add("table", table_view(summary, "topics-table", "Topics", [s for s in spec if s[0] in summary.columns],
+                                    group=lambda r: str(r["question"])))
+    _add_figures(section, [f for f in inputs.figures if f.section == "topics"])
+    return section
+
+
+def quotes_section(inputs: ReportInputs) -> Section:
+    """Typical, varied, redacted answers for each question and theme (the whole sample)."""
+    section = Section("quotes", "Quotes")
+    quotes = inputs.quotes
+    if quotes is None or quotes.empty:
+        return section.add("text", "No answer of a theme was within the quotes' length window.")
+    quotes = quotes[quotes["group_var"] == ALL]
+    section.add("text", "Typical and varied answers for each theme (picked by maximal marginal relevance on "
+                "TF-IDF), redacted: contact details, links, long digit runs and likely names are replaced. "
+                "Redaction cannot catch everything: read every quote before publishing it. Quotes per group are "
+                "in quotes.csv.")
+    spec = [("question", "Question", "text"), ("theme_label", "Theme", "text"), ("quote", "Quote", "text"),
+            ("evidence", "Matched", "text"), ("redactions", "Redactions", "int")]
+    return section.add("table", table_view(quotes, "quotes-table", "Quotes by theme", spec,
+                                           group=lambda r: str(r["theme_label"])))
 
 
 def method_section(inputs: ReportInputs) -> Section:
@@ -518,18 +586,8 @@ def build_sections(inputs: ReportInputs) -> list[Section]:
     sections += [prevalence_section(inputs, q) for q in inputs.questions]
     sections.append(comparisons_section(inputs))
     sections.append(keyness_section(inputs))
-    sections.append(optional_section(
-        "topics", "Emerging topics", inputs.topics,
-        [("question", "Question", "text"), ("topic", "Topic", "text"), ("label", "Label", "text"),
-         ("n_answers", "Answers", "int"), ("weighted_share", "Share", "pct"), ("coherence", "Coherence", "num")],
-        "Topics found by NMF in what the lexicon leaves unexplained.",
-        [f for f in inputs.figures if f.section == "topics"], inputs.missing.get("topics", "")))
-    sections.append(optional_section(
-        "quotes", "Quotes", inputs.quotes,
-        [("question", "Question", "text"), ("theme", "Theme", "text"), ("group", "Group", "text"),
-         ("quote", "Quote", "text")],
-        "Typical and varied answers for each theme, redacted. Read every quote before publishing it.",
-        (), inputs.missing.get("quotes", "")))
+    sections.append(topics_section(inputs))
+    sections.append(quotes_section(inputs))
     sections.append(method_section(inputs))
     return sections
 
@@ -579,8 +637,10 @@ def report_tables(inputs: ReportInputs) -> dict[str, pd.DataFrame]:
         tables["keyness"] = inputs.keyness
     if inputs.agreement is not None:
         tables["agreement"] = inputs.agreement
-    if inputs.topics is not None:
-        tables["topics"] = inputs.topics
+    for name, frame in (("topics", inputs.topics), ("topic_terms", inputs.topic_terms),
+                        ("k_selection", inputs.k_selection), ("quotes", inputs.quotes)):
+        if frame is not None:
+            tables[name] = frame
     return tables
 
 

@@ -3,8 +3,8 @@
 :func:`group_summaries` selects, for every group of one group variable, what
 a stakeholder reads in two minutes: its base and flags, its top themes against
 the rest with intervals, its differences that survive FDR control, what
-changed since the previous wave for it, a few of its quotes (when the build has
-a quote table) and the cautions. :func:`summary_pdf` lays that out on exactly
+changed since the previous wave for it, two or three of its quotes (from its
+biggest themes) and the cautions. :func:`summary_pdf` lays that out on exactly
 one A4 page with matplotlib's PDF backend (longer lists are cut to fit, and
 say so); :func:`summary_html` renders the same content as HTML.
 """
@@ -22,7 +22,6 @@ import pandas as pd
 from .report import (
     ALL,
     CAUTIONS,
-    NOT_AVAILABLE,
     percent,
     render_page,
     significant,
@@ -46,7 +45,7 @@ class GroupSummary:
     top_themes: list[tuple[str, str, str, str, str]]
     differences: list[str]
     changes: list[str]
-    quotes: list[str] | None
+    quotes: list[tuple[str, str]] | None
     cautions: list[str] = field(default_factory=list)
 
 
@@ -84,11 +83,13 @@ def _difference_line(record: dict, labels: dict, kind: str) -> str:
 
 def group_summaries(prevalence: pd.DataFrame, comparisons: pd.DataFrame, group_var: str, labels: dict,
                     questions: list[str], quotes: pd.DataFrame | None = None, top: int = 4,
-                    survey_title: str = "") -> list[GroupSummary]:
+                    survey_title: str = "", n_quotes: int = 3) -> list[GroupSummary]:
     """One :class:`GroupSummary` per group of ``group_var`` (sorted by group name).
 
-    ``quotes`` (optional) needs ``group_var``, ``group`` and ``quote`` columns;
-    None means this build has no quote picker, and the page says so.
+    ``quotes`` (optional; :func:`textkit.present.quotes.choose_quotes` rows) needs
+    ``question``, ``theme``, ``group_var``, ``group`` and ``quote``: each page shows up
+    to ``n_quotes`` (quote, theme label) pairs of its group, one per theme, from the
+    themes the group raises most. None: no quotes were picked, and the page says so.
     """
     groups = sorted(prevalence.loc[prevalence["group_var"] == group_var, "group"].astype(str).unique())
     waves = waves_of(prevalence)
@@ -103,10 +104,7 @@ def group_summaries(prevalence: pd.DataFrame, comparisons: pd.DataFrame, group_v
         differences = [_difference_line(r, labels, "rest") for r in significant(rest).head(5).to_dict("records")]
         changes = [_difference_line(r, labels, "wave")
                    for r in significant(wave_changes(comparisons, waves, group_var, group)).head(4).to_dict("records")]
-        picked = None
-        if quotes is not None:
-            chosen = quotes[(quotes["group_var"] == group_var) & (quotes["group"].astype(str) == group)]
-            picked = [str(q) for q in chosen["quote"].head(3)]
+        picked = None if quotes is None else _group_quotes(quotes, mine, group_var, group, labels, n_quotes)
         summaries.append(GroupSummary(
             group_var=group_var, group=group, title=f"{survey_title} — {group_var}: {group}".strip(" —"),
             bases=bases, flags=(f"{int(flags.get('ok', 0))} estimates ok, {int(flags.get('caution', 0))} caution, "
@@ -114,6 +112,20 @@ def group_summaries(prevalence: pd.DataFrame, comparisons: pd.DataFrame, group_v
             top_themes=top_rows, differences=differences, changes=changes, quotes=picked,
             cautions=[f"{title}: {text}" for title, text in CAUTIONS]))
     return summaries
+
+
+def _group_quotes(quotes: pd.DataFrame, prevalence: pd.DataFrame, group_var: str, group: str, labels: dict,
+                  n_quotes: int) -> list[tuple[str, str]]:
+    """The group's first-ranked quotes of its most raised themes (one per theme), biggest theme first."""
+    chosen = quotes[(quotes["group_var"] == group_var) & (quotes["group"].astype(str) == group)]
+    if chosen.empty:
+        return []
+    share = prevalence[prevalence["wave"] == ALL].set_index(["question", "theme"])["estimate"]  # order only
+    keys = pd.MultiIndex.from_frame(chosen[["question", "theme"]])
+    chosen = chosen.assign(share=share.reindex(keys).to_numpy())
+    chosen = chosen.sort_values(["share", "question", "theme", "rank"], ascending=[False, True, True, True],
+                                kind="stable", na_position="last").drop_duplicates("theme")
+    return [(str(q), labels.get(t, str(t))) for q, t in zip(chosen["quote"], chosen["theme"], strict=True)][:n_quotes]
 
 
 def _block(figure: Any, y: float, heading: str, lines: list[str], *, width: int = 110, size: float = 8.5,
@@ -158,8 +170,8 @@ def summary_figure(summary: GroupSummary) -> Any:
                summary.differences or ["None survive the false discovery rate control."], floor=0.42)
     y = _block(figure, y, "Changes since the previous wave (BH q < 0.05)",
                summary.changes or ["None survive the false discovery rate control (or one wave only)."], floor=0.34)
-    quotes = [f"“{q}”" for q in summary.quotes] if summary.quotes else [
-        f"Quotes: {NOT_AVAILABLE}." if summary.quotes is None else "No quotes for this group."]
+    quotes = [f"“{q}” ({theme})" for q, theme in summary.quotes] if summary.quotes else [
+        "No quotes were picked." if summary.quotes is None else "No quotes for this group."]
     y = _block(figure, y, "In their words (redacted; read before publishing)", quotes, floor=0.22)
     _block(figure, min(y, 0.21), "Cautions", summary.cautions, width=120, size=7.5, floor=0.02)
     return figure
@@ -167,16 +179,20 @@ def summary_figure(summary: GroupSummary) -> Any:
 
 def summary_pdf(summary: GroupSummary) -> bytes:
     """The page as PDF bytes: exactly one A4 page, no creation date (same content, same bytes)."""
+    import warnings
+
     figure = summary_figure(summary)
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="pdf", metadata={"CreationDate": None, "Title": summary.title,
-                                                   "Creator": "textkit", "Producer": "textkit"})
+    with warnings.catch_warnings():  # a glyph the font lacks (an emoji in a quote) is drawn as a box
+        warnings.filterwarnings("ignore", message="Glyph .* missing from font")
+        figure.savefig(buffer, format="pdf", metadata={"CreationDate": None, "Title": summary.title,
+                                                       "Creator": "textkit", "Producer": "textkit"})
     return buffer.getvalue()
 
 
 def summary_html(summary: GroupSummary) -> str:
     """The page as a self-contained HTML document."""
-    return render_page("summary.html.j2", s=summary, not_available=NOT_AVAILABLE)
+    return render_page("summary.html.j2", s=summary)
 
 
 def file_stems(groups: list[str]) -> dict[str, str]:
