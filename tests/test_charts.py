@@ -68,6 +68,93 @@ def test_prevalence_chart_uses_labels_when_the_table_has_them():
     assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues"
 
 
+def _dense_prevalence(n_themes: int = 30, n_groups: int = 7, seed: int = 9) -> pd.DataFrame:
+    """Many themes, many groups, overlapping intervals: labels must compete for room."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    for t in range(n_themes):
+        level = rng.uniform(0.01, 0.4)
+        rows.append(("low_point", f"theme_{t:02d}", "(all)", "(all)", 2000, level))
+        rows += [("low_point", f"theme_{t:02d}", "region", f"Region {g}", 300, max(0.0, level + rng.normal(0, 0.02)))
+                 for g in range(n_groups)]
+    frame = pd.DataFrame(rows, columns=["question", "theme", "group_var", "group", "n", "estimate"])
+    half = rng.uniform(0.005, 0.06, len(frame))
+    return frame.assign(wave="(all)", ci_low=(frame["estimate"] - half).clip(0), ci_high=frame["estimate"] + half,
+                        flag="ok")
+
+
+def _label_boxes(figure, prefix):
+    from textkit.present.style import renderer_of
+
+    renderer = renderer_of(figure)
+    texts = [t for t in figure.axes[0].texts if (t.get_gid() or "").startswith(prefix)]
+    return texts, [t.get_window_extent(renderer) for t in texts]
+
+
+def test_direct_labels_never_overlap_on_a_dense_chart():
+    table = _dense_prevalence()
+    figure = charts.prevalence_chart(table, question="low_point", group_var="region")
+    texts, boxes = _label_boxes(figure, "")
+    values = [t for t in texts if t.get_gid().startswith("value-label:")]
+    names = [t for t in texts if t.get_gid().startswith("label:group:")]
+    assert len(values) > 20  # the step keeps labels where there is room...
+    assert len(values) < (table["group_var"] == "region").sum()  # ...and drops some on this crowded chart
+    assert names and {t.get_text() for t in names} <= {f"Region {g}" for g in range(7)}
+    overlapping = [(a.get_text(), b.get_text()) for i, (a, box_a) in enumerate(zip(texts, boxes, strict=True))
+                   for b, box_b in zip(texts[i + 1:], boxes[i + 1:], strict=True) if box_a.overlaps(box_b)]
+    assert overlapping == []
+    axes_box = figure.axes[0].bbox
+    assert all(axes_box.x0 <= box.x0 and box.x1 <= axes_box.x1 for box in boxes)
+    # every value label says the value of a dot of its own group, and sits beside that dot's whisker
+    shown = table[table["group_var"] == "region"]
+    for text in values:
+        group = text.get_gid().split(":", 1)[1]
+        x, y = text.xy
+        mine = shown[(shown["group"] == group) & (np.isclose(shown["ci_high"], x) | np.isclose(shown["ci_low"], x))]
+        assert f"{mine['estimate'].iloc[0] * 100:.0f}%" == text.get_text()
+
+
+def test_every_dot_gets_its_value_when_there_is_room():
+    table = _prevalence()
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    texts, boxes = _label_boxes(figure, "value-label:")
+    shown = table[(table["group_var"] == "market") & (table["flag"] != "suppress")]
+    assert sorted(t.get_text() for t in texts) == sorted(f"{v * 100:.0f}%" for v in shown["estimate"])
+    assert not any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:])
+
+
+def test_the_placement_step_drops_a_label_that_would_collide():
+    from matplotlib.figure import Figure
+
+    from textkit.present.labels import LabelRequest, place_labels
+
+    figure = Figure(figsize=(4, 2), dpi=100)
+    axes = figure.add_subplot()
+    axes.set_xlim(0, 1)
+    axes.set_ylim(0, 1)
+    same_spot = [LabelRequest("first", [(0.3, 0.5, "right")], "a", "black"),
+                 LabelRequest("second", [(0.3, 0.5, "right")], "b", "black"),
+                 LabelRequest("third", [(0.3, 0.5, "right"), (0.3, 0.5, "left")], "c", "black")]
+    placed = place_labels(axes, same_spot)
+    assert [t.get_text() for t in placed] == ["first", "third"]  # second dropped, third moved left
+    assert placed[1].get_horizontalalignment() == "right"
+
+
+def test_reshaped_tables_give_wording_labels_and_flag_reasons():
+    table = _prevalence().assign(
+        question_text="What was the low point of your visit?",
+        theme_label=lambda f: f["theme"].map({"queues": "Queues and waiting", "cost_value": "Cost and value",
+                                              "toilets": "Toilets", "parking": "Parking"}),
+        flag_reason=lambda f: np.where(f["flag"] == "caution", "relative SE 30% or more",
+                                       np.where(f["flag"] == "suppress", "base below 30", None)))
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    texts = [t.get_text() for t in figure.texts]
+    assert "What was the low point of your visit?" in texts
+    assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues and waiting"
+    caption = [t for t in texts if "Hollow dots" in t]
+    assert caption and "relative SE 30% or more" in caption[0] and "base below 30" in caption[0]
+
+
 def test_a_filter_value_not_in_the_data_lists_the_valid_ones():
     with pytest.raises(AnalysisError, match="group_var 'region' is not in prevalence.csv; valid values: .*market"):
         charts.prevalence_chart(_prevalence(), question="low_point", group_var="region")

@@ -129,6 +129,33 @@ def frame_figure(figure: Any, text: ChartText) -> Any:
     return figure
 
 
+def renderer_of(figure: Any) -> Any:
+    """An Agg renderer for ``figure`` (attaching an Agg canvas when it has none), to measure text."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = figure.canvas if isinstance(figure.canvas, FigureCanvasAgg) else FigureCanvasAgg(figure)
+    return canvas.get_renderer()
+
+
+def fit_side_margins(figure: Any, axes: Any, *, legend: Any = None, min_left: float = 0.12,
+                     max_left: float = 0.5) -> None:
+    """Set the left margin to the widest y tick label and the right one to the legend's width.
+
+    Measures the texts once with the figure's renderer (cheaper than a full
+    tight layout, and it leaves the title block and caption where
+    :func:`frame_figure` put them).
+    """
+    renderer = renderer_of(figure)
+    width = figure.get_figwidth() * figure.dpi
+    labels = [t.get_window_extent(renderer).width for t in axes.get_yticklabels() if t.get_text()]
+    # tick length and padding, plus a little air
+    left = min(max_left, max(min_left, (max(labels, default=0) + 0.16 * figure.dpi) / width))
+    right = 0.97
+    if legend is not None:
+        right = 1 - (legend.get_window_extent(renderer).width + 0.2 * figure.dpi) / width
+    figure.subplots_adjust(left=left, right=max(right, left + 0.25))
+
+
 def caption_text(*, source: str = "", base: str = "", weighting: str = "", interval: str = "",
                  extra: Sequence[str] = ()) -> str:
     """A caption from its parts: 'Source: ... Base: ... Weighting: ... Intervals: ...'."""
