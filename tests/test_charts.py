@@ -13,6 +13,7 @@ from textkit.cli.main import main
 from textkit.errors import AnalysisError
 from textkit.io.output import render_figure
 from textkit.present import charts
+from textkit.present.style import row_label_texts
 
 THEMES = ["queues", "cost_value", "toilets", "parking"]
 GROUPS = ["Caldoria", "Tessary", "Vossland"]
@@ -55,7 +56,7 @@ def test_prevalence_chart_draws_one_point_and_whisker_per_shown_row():
     whisker_y = np.concatenate([[seg[0][1] for seg in c.get_segments()] for c in _collections(figure, "whiskers:")])
     assert not np.isclose(whisker_y, suppressed_y[0]).any()
     # ticks from the data, highest overall prevalence at the top
-    ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    ticks = row_label_texts(figure.axes[0])
     assert ticks == ["parking", "toilets", "cost_value", "queues"]
     legend = [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
     assert [entry.split(" (n=")[0] for entry in legend[:3]] == GROUPS
@@ -65,7 +66,7 @@ def test_prevalence_chart_draws_one_point_and_whisker_per_shown_row():
 def test_prevalence_chart_uses_labels_when_the_table_has_them():
     table = _prevalence().assign(label=lambda f: f["theme"].str.replace("_", " ").str.title())
     figure = charts.prevalence_chart(table, question="low_point", group_var="market")
-    assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues"
+    assert row_label_texts(figure.axes[0])[-1] == "Queues"
 
 
 def _dense_prevalence(n_themes: int = 30, n_groups: int = 7, seed: int = 9) -> pd.DataFrame:
@@ -94,7 +95,7 @@ def _label_boxes(figure, prefix):
 def test_direct_labels_never_overlap_on_a_dense_chart():
     table = _dense_prevalence()
     figure = charts.prevalence_chart(table, question="low_point", group_var="region")
-    texts, boxes = _label_boxes(figure, "")
+    texts, boxes = _label_boxes(figure, ("value-label:", "label:group:"))
     values = [t for t in texts if t.get_gid().startswith("value-label:")]
     names = [t for t in texts if t.get_gid().startswith("label:group:")]
     assert len(values) > 20  # the step keeps labels where there is room...
@@ -150,7 +151,7 @@ def test_reshaped_tables_give_wording_labels_and_flag_reasons():
     figure = charts.prevalence_chart(table, question="low_point", group_var="market")
     texts = [t.get_text() for t in figure.texts]
     assert "What was the low point of your visit?" in texts
-    assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues and waiting"
+    assert row_label_texts(figure.axes[0])[-1] == "Queues and waiting"
     caption = [t for t in texts if "Hollow dots" in t]
     assert caption and "relative SE 30% or more" in caption[0] and "base below 30" in caption[0]
 
@@ -186,7 +187,7 @@ def test_differences_sorted_with_significant_rows_distinct_and_a_zero_line():
     rows = charts.difference_rows(_comparisons(), question="low_point", kind="waves")
     figure = charts.differences_chart(rows)
     axes = figure.axes[0]
-    assert [t.get_text() for t in axes.get_yticklabels()] == ["parking", "cost_value", "toilets", "queues"]
+    assert row_label_texts(axes) == ["parking", "cost_value", "toilets", "queues"]
     significant = _collections(figure, "points:significant")[0].get_offsets()
     assert sorted(significant[:, 0]) == [-0.06, 0.05]
     assert len(_collections(figure, "points:not-significant")[0].get_offsets()) == 2
@@ -200,16 +201,22 @@ def _keyness() -> pd.DataFrame:
                          "reference": "(rest)", "term": terms, "z": z, "g2": z ** 2})
 
 
+def _bar_widths(axes) -> list[float]:
+    """Signed length of every bar drawn (one path per bar in the 'bars:' collections)."""
+    return [float(path.vertices[1, 0] - path.vertices[0, 0]) for c in axes.collections
+            if (c.get_gid() or "").startswith("bars:") for path in c.get_paths()]
+
+
 def test_keyness_bars_one_per_term_per_side_with_the_measure_named():
     figure = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", top=4)
     axes = figure.axes[0]
-    bars = [p for p in axes.patches]
-    assert len(bars) == 8
-    assert sum(p.get_width() > 0 for p in bars) == 4
-    assert set(t.get_text() for t in axes.get_yticklabels()) == {f"term {i}" for i in (0, 1, 2, 3, 8, 9, 10, 11)}
+    widths = _bar_widths(axes)
+    assert len(widths) == 8
+    assert sum(w > 0 for w in widths) == 4
+    assert set(row_label_texts(axes)) == {f"term {i}" for i in (0, 1, 2, 3, 8, 9, 10, 11)}
     assert "z-score" in axes.get_xlabel()
     g2 = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", measure="g2")
-    assert sum(p.get_width() < 0 for p in g2.axes[0].patches) == 6  # G2 takes the side of z
+    assert sum(w < 0 for w in _bar_widths(g2.axes[0])) == 6  # G2 takes the side of z
 
 
 def test_cooccurrence_matrix_matches_a_crosstab():
@@ -229,8 +236,8 @@ def test_topic_charts_from_the_topic_tables():
                           columns=["question", "scope", "topic", "label", "rank", "term", "weight"])
     figure = charts.topic_terms_chart(topics, question="low_point", top=5)
     panels = [a for a in figure.axes if a.get_visible()]
-    assert len(panels) == 3 and all(len(a.patches) == 5 for a in panels)
-    assert [t.get_text() for t in panels[0].get_yticklabels()][-1] == "w11"
+    assert len(panels) == 3 and all(len(_bar_widths(a)) == 5 for a in panels)
+    assert row_label_texts(panels[0])[-1] == "w11"
     k_table = pd.DataFrame({"question": "low_point", "scope": "uncoded", "k": [3, 4, 5, 6],
                             "stability": [0.6, 0.8, 0.7, 0.5], "coherence": [0.1, 0.2, 0.15, 0.1],
                             "chosen": [False, True, False, False]})

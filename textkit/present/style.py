@@ -137,6 +137,28 @@ def renderer_of(figure: Any) -> Any:
     return canvas.get_renderer()
 
 
+def row_labels(axes: Any, positions: Sequence[float], labels: Sequence[str], *, fontsize: float = 9,
+               colour: str = MUTED_INK) -> list[Any]:
+    """Category names left of ``axes``, one Text per row at y = ``positions`` (data units).
+
+    Drawn as plain texts (``gid='row-label'``) rather than tick labels: a chart
+    with many rows then builds no tick objects, which are the costliest part of
+    drawing it; the y axis carries no ticks.
+    """
+    from matplotlib.transforms import offset_copy
+
+    axes.set_yticks([])
+    transform = offset_copy(axes.get_yaxis_transform(), axes.figure, x=-4, y=0, units="points")
+    return [axes.text(0, y, str(label), transform=transform, ha="right", va="center", fontsize=fontsize,
+                      color=colour, gid="row-label") for y, label in zip(positions, labels, strict=True)]
+
+
+def row_label_texts(axes: Any) -> list[str]:
+    """The row labels of ``axes`` bottom to top (as :func:`row_labels` drew them)."""
+    texts = [t for t in axes.texts if t.get_gid() == "row-label"]
+    return [t.get_text() for t in sorted(texts, key=lambda t: t.get_position()[1])]
+
+
 def fit_side_margins(figure: Any, axes: Any, *, legend: Any = None, min_left: float = 0.12,
                      max_left: float = 0.5) -> None:
     """Set the left margin to the widest y tick label and the right one to the legend's width.
@@ -147,7 +169,8 @@ def fit_side_margins(figure: Any, axes: Any, *, legend: Any = None, min_left: fl
     """
     renderer = renderer_of(figure)
     width = figure.get_figwidth() * figure.dpi
-    labels = [t.get_window_extent(renderer).width for t in axes.get_yticklabels() if t.get_text()]
+    texts = [t for t in axes.texts if t.get_gid() == "row-label"] or list(axes.get_yticklabels())
+    labels = [t.get_window_extent(renderer).width for t in texts if t.get_text()]
     # tick length and padding, plus a little air
     left = min(max_left, max(min_left, (max(labels, default=0) + 0.16 * figure.dpi) / width))
     right = 0.97
