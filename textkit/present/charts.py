@@ -70,7 +70,8 @@ def _theme_labels(frame: pd.DataFrame, labels: Mapping[str, str] | None) -> dict
     found: dict[str, Any] = {}
     for column in ("label", "theme_label"):
         if column in frame.columns:
-            found.update(zip(frame["theme"], frame[column], strict=False))
+            pairs = frame[["theme", column]].drop_duplicates("theme")
+            found.update(zip(pairs["theme"].tolist(), pairs[column].tolist(), strict=True))
     found.update(labels or {})
     return {str(k): str(v) for k, v in found.items() if isinstance(v, str) and v}
 

@@ -170,7 +170,9 @@ def fit_side_margins(figure: Any, axes: Any, *, legend: Any = None, min_left: fl
     renderer = renderer_of(figure)
     width = figure.get_figwidth() * figure.dpi
     texts = [t for t in axes.texts if t.get_gid() == "row-label"] or list(axes.get_yticklabels())
-    labels = [t.get_window_extent(renderer).width for t in texts if t.get_text()]
+    # the widest label is among the longest strings: measure only those (text layout is the costly part)
+    longest = sorted((t for t in texts if t.get_text()), key=lambda t: len(t.get_text()), reverse=True)[:6]
+    labels = [t.get_window_extent(renderer).width for t in longest]
     # tick length and padding, plus a little air
     left = min(max_left, max(min_left, (max(labels, default=0) + 0.16 * figure.dpi) / width))
     right = 0.97
