@@ -7,7 +7,7 @@ keyness) use directly. :func:`write_coded` writes it atomically.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -636,9 +636,13 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
     return SurveyReport(files=files, manifest=report_manifest, timings=stages.timings, summaries=pages)
 
 
-def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
-    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none."""
+def write_report(report: SurveyReport, out_dir: str | Path,
+                 inputs: Iterable[str | Path | None] = ()) -> list[Path]:
+    """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none.
+
+    A file that would replace one of ``inputs`` (config, survey, lexicon, hand codes) is refused first.
+    """
     from .io.export import bytes_writer, write_tree
 
     return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
-                      report.manifest)
+                      report.manifest, inputs=inputs)

@@ -24,10 +24,11 @@ import io
 import shutil
 import tempfile
 import zipfile
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
+from ..errors import InputError
 from .output import Writer, write_outputs
 
 #: Characters that make a spreadsheet read a text cell as a formula when they come first.
@@ -180,19 +181,21 @@ def bytes_writer(payload: bytes) -> Writer:
     return lambda path: Path(path).write_bytes(payload)
 
 
-def write_tree(out_dir: str | Path, files: Mapping[str, Writer], manifest: Mapping[str, Any] | None = None
-               ) -> list[Path]:
+def write_tree(out_dir: str | Path, files: Mapping[str, Writer], manifest: Mapping[str, Any] | None = None,
+               *, inputs: Iterable[str | Path | None] = ()) -> list[Path]:
     """Write files into ``out_dir`` and its subfolders (names like ``charts/a.svg``), all or nothing.
 
     Every file is first written, through :func:`textkit.io.output.write_outputs`,
     into a staging folder inside ``out_dir``; only when all of them are written
     are they renamed into place. If any writer fails, the staging folder is
     removed and ``out_dir`` is as it was. ``manifest`` goes to ``out_dir/manifest.json``.
-    Files of earlier runs with other names are left where they are.
+    Files of earlier runs with other names are left where they are. A file that
+    would replace one of ``inputs`` is refused before anything is written.
     """
     import os
 
     out = Path(out_dir)
+    _refuse_replacing_inputs(out, [*files, *(["manifest.json"] if manifest is not None else [])], inputs)
     by_folder: dict[str, dict[str, Writer]] = {}
     for name, writer in files.items():
         parent, _, leaf = name.rpartition("/")
@@ -214,3 +217,17 @@ def write_tree(out_dir: str | Path, files: Mapping[str, Writer], manifest: Mappi
         return [final for _, final in staged]
     finally:
         shutil.rmtree(staging, ignore_errors=True)
+
+
+def _refuse_replacing_inputs(out: Path, names: Iterable[str], inputs: Iterable[str | Path | None]) -> None:
+    """One line if writing ``names`` under ``out`` would replace one of ``inputs`` (same path or same file)."""
+    import os
+
+    sources = [Path(p).expanduser() for p in inputs if p is not None and str(p)]
+    for name in names:
+        final = out / name
+        for source in sources:
+            if final.resolve() == source.resolve() or (final.exists() and source.exists()
+                                                       and os.path.samefile(final, source)):
+                raise InputError(f"writing '{name}' would replace the input '{source}'; choose another "
+                                 "--out folder", source=out)

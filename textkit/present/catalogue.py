@@ -131,7 +131,15 @@ def _read(path: Path) -> pd.DataFrame:
     frame, _ = read_table(path)
     for column in frame.columns:
         if column in _NUMERIC:
-            frame[column] = pd.to_numeric(frame[column], errors="coerce")
+            values = pd.to_numeric(frame[column], errors="coerce")
+            text = frame[column].astype("string").str.strip()
+            bad = values.isna().to_numpy() & text.notna().to_numpy() & (text != "").fillna(False).to_numpy()
+            bad &= ~text.str.lower().isin(["nan", "inf", "-inf"]).fillna(False).to_numpy()
+            if bad.any():
+                row = int(bad.argmax())
+                raise InputError(f"expected a number, found '{text.iloc[row]}'; was the table edited by hand? "
+                                 "Run the command that makes it again", source=path, row=row + 2, column=column)
+            frame[column] = values
     return frame
 
 
