@@ -280,3 +280,35 @@ def test_charts_command_bad_input_is_one_line(tmp_path, capsys):
     blocker.write_text("x")
     assert main(["charts", str(folder), "--out", str(blocker / "sub"), "--jobs", "1"]) == 2
     assert "\n" not in capsys.readouterr().err.strip()
+
+
+def test_catalogue_draws_each_questions_own_topics_with_labels_and_wording(tmp_path):
+    from textkit.present.catalogue import chart_text, draw_chart, load_results, plan_charts
+
+    table = _prevalence()
+    extra = []
+    for code in ("topic_01", "topic_02", "money"):
+        part = table[table["theme"] == "queues"].assign(theme=code)
+        extra.append(part)
+    table = pd.concat([table, *extra], ignore_index=True)
+    table["theme_label"] = table["theme"].map({"topic_01": "ferry / late", "topic_02": "view / boat"}).fillna(
+        table["theme"])
+    table["question_text"] = "What was the low point of your visit?"
+    stats, coded = tmp_path / "stats", tmp_path / "coded"
+    stats.mkdir()
+    coded.mkdir()
+    table.to_csv(stats / "prevalence.csv", index=False)
+    (stats / "manifest.json").write_text(json.dumps({"command": "prevalence", "nets": {"money": ["cost_value"]}}))
+    codes = [{"id": t, "kind": "theme", "label": t, "question": None} for t in THEMES]
+    codes += [{"id": "topic_01", "kind": "topic", "label": "ferry / late", "question": "low_point"},
+              {"id": "topic_02", "kind": "topic", "label": "view / boat", "question": "high_point"}]
+    (coded / "manifest.json").write_text(json.dumps({"command": "code", "codes": codes, "themes": THEMES}))
+    pd.DataFrame({"question": ["low_point"], "answered": [1], **{t: [1] for t in THEMES}}).to_csv(
+        coded / "coded.csv", index=False)
+    results = load_results([stats, coded])
+    spec = next(s for s in plan_charts(results) if s.kind == "prevalence" and s.arguments["group_var"] == "market")
+    text = chart_text(results, spec)
+    assert text.subtitle == "What was the low point of your visit?"
+    rows = row_label_texts(draw_chart(results, spec, text=text).axes[0])
+    assert "Topic: ferry / late" in rows and "Money (net)" in rows
+    assert not any("view / boat" in r for r in rows)  # the other question's topic is left out

@@ -505,7 +505,20 @@ def cooccurrence_chart(coded: pd.DataFrame, themes: Sequence[str], *, question: 
         percent_axis(bar.ax.yaxis)
         bar.set_label("of answers with the row theme, share that also have the column theme", fontsize=7)
         frame_figure(figure, text or ChartText(f"{question}: which themes come up together", question))
+        _fit_heatmap_margins(figure, axes)
     return figure
+
+
+def _fit_heatmap_margins(figure: Any, axes: Any) -> None:
+    """Room left of the heatmap for the row names and under it for the slanted column names."""
+    from .style import renderer_of
+
+    fit_side_margins(figure, axes, max_left=0.4)
+    renderer = renderer_of(figure)
+    names = sorted(axes.get_xticklabels(), key=lambda t: len(t.get_text()), reverse=True)[:6]
+    height = max((t.get_window_extent(renderer).height for t in names), default=0.0)
+    bottom = figure.subplotpars.bottom + (height + 0.1 * figure.dpi) / (figure.get_figheight() * figure.dpi)
+    figure.subplots_adjust(bottom=min(bottom, 0.6), right=0.95)
 
 
 def topic_terms_chart(topics: pd.DataFrame, *, question: str, scope: str | None = None, top: int = 8,
