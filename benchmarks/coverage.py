@@ -11,7 +11,7 @@ df = #PSU - #strata) and every interval method; a cell reports the share of the
 replications whose interval covers p. Replications are stacked as independent
 waves of one design, so each keeps its own strata, PSUs and df.
 
-The default publishing rule (``NCHS_LIKE``) is applied to every replication:
+The default publishing rule ``base-width`` (``BASE_WIDTH_RULE``) is applied to every replication:
 ``cover`` is the coverage over all replications, ``cover|shown`` over the ones
 not suppressed, ``suppr`` the share suppressed. A cell is marked ``S`` when most
 of its replications are suppressed (an analyst would usually not see them).

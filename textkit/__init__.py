@@ -28,11 +28,13 @@ _EXPORTS = {
     "compare_with_hand_codes": "coding.agreement", "agreement_table": "coding.agreement",
     "evaluate_hand_codes": "coding.agreement", "krippendorff_alpha_nominal": "coding.agreement",
     "review_table": "coding.review", "draw_sample": "coding.sampling", "lexicon_diff": "coding.lexicon_diff",
-    "SurveyDesign": "stats.design",
+    "SurveyDesign": "stats.design", "crosstab": "stats.crosstab",
     "analyse": "stats.estimate", "prevalence": "stats.estimate", "compare_groups": "stats.estimate",
     "compare_waves": "stats.estimate", "group_tests": "stats.estimate", "ReliabilityRule": "stats.estimate",
     "BASE_WIDTH_RULE": "stats.estimate", "NCHS_LIKE": "stats.rules",
     "keyness": "discover.keyness", "document_term_matrix": "text.ngrams",
+    "LearnedCoder": "coding.learned", "repair_lexicon": "coding.repair", "rogan_gladen": "stats.misclassification",
+    "train_coder": "pipeline", "code_survey_with_coder": "pipeline",
 }
 
 __getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

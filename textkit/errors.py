@@ -75,3 +75,83 @@ class DesignError(TextkitError):
 
 class AnalysisError(TextkitError):
     """An analysis request does not fit the data (unknown group, empty group...)."""
+
+
+#: Most problems one run lists before it stops (the rest are counted).
+MAX_PROBLEMS = 20
+
+
+class DataProblemsError(InputError):
+    """Several problems found in one pass over the data, each with its own place.
+
+    The message is the summary line (with one problem: that problem's own line);
+    :attr:`problems` holds up to :data:`MAX_PROBLEMS` of them, each a
+    :class:`TextkitError` naming file, row and column, and :attr:`detail_lines`
+    the lines the CLI prints under the summary.
+
+    Parameters
+    ----------
+    problems : list of TextkitError
+        The problems kept, in the order found (at least one).
+    total : int, optional
+        How many were found in all (default: ``len(problems)``).
+    """
+
+    def __init__(self, problems: list[TextkitError], total: int | None = None) -> None:
+        self.problems = list(problems)
+        self.total = max(total or 0, len(self.problems))
+        first = self.problems[0]
+        if self.total == 1:
+            super().__init__(first.message, source=first.source, line=first.line, row=first.row,
+                             column=first.column)
+            return
+        sources = list(dict.fromkeys(p.source for p in self.problems if p.source is not None))
+        listed = "all listed below" if self.total == len(self.problems) else \
+            f"the first {len(self.problems)} listed below"
+        super().__init__(f"{self.total} problems in the data ({listed}); fix them and run again",
+                         source=sources[0] if len(sources) == 1 else None)
+
+    @property
+    def detail_lines(self) -> list[str]:
+        """One line per problem kept (none when there is only one), then how many were left unlisted."""
+        if self.total == 1:
+            return []
+        lines = [str(problem) for problem in self.problems]
+        if self.total > len(self.problems):
+            lines.append(f"... and {self.total - len(self.problems)} more problem(s) of the same kinds")
+        return lines
+
+
+class ProblemCollector:
+    """Gathers data problems so one run can report many (see :class:`DataProblemsError`).
+
+    Parameters
+    ----------
+    limit : int, default :data:`MAX_PROBLEMS`
+        Problems kept; later ones are only counted.
+    """
+
+    def __init__(self, limit: int = MAX_PROBLEMS) -> None:
+        self.limit = limit
+        self.problems: list[TextkitError] = []
+        self.total = 0
+
+    def add(self, problem: TextkitError) -> None:
+        """Record one problem."""
+        self.total += 1
+        if len(self.problems) < self.limit:
+            self.problems.append(problem)
+
+    def count(self, n_more: int) -> None:
+        """Count ``n_more`` problems that are not listed (beyond the limit)."""
+        self.total += n_more
+
+    @property
+    def full(self) -> bool:
+        """True when no more problems would be listed."""
+        return len(self.problems) >= self.limit
+
+    def raise_if_any(self) -> None:
+        """Raise :class:`DataProblemsError` when anything was recorded."""
+        if self.total:
+            raise DataProblemsError(self.problems, self.total)

@@ -36,6 +36,8 @@ _LAZY_COMMANDS = {
     "charts": "textkit.cli.present:charts_command",
     "quotes": "textkit.cli.present:quotes_command",
     "topics": "textkit.cli.discover:topics_command",
+    "train": "textkit.cli.learn:train_command",
+    "mend": "textkit.cli.learn:mend_command",
 }
 
 
@@ -158,6 +160,8 @@ def main(argv: list[str] | None = None) -> int:
         cli.main(args=argv, prog_name="textkit", standalone_mode=False)
     except TextkitError as error:
         click.echo(f"textkit: error: {error}", err=True)
+        for line in getattr(error, "detail_lines", ()):  # DataProblemsError: one problem a line
+            click.echo(f"  {line}", err=True)
         return 2
     except OSError as error:  # a disk full or a folder we may not write: still one line
         where = f"{error.filename}: " if error.filename else ""

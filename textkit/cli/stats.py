@@ -124,11 +124,22 @@ def _inputs(source: Path, record: dict) -> list:
 @click.option("--encoding", default="utf-8-sig", show_default=True,
               help="Text encoding of the CSV files (utf-8-sig: UTF-8 with a BOM, read correctly by "
                    "spreadsheet software on every platform).")
+@click.option("--layout", type=click.Choice(["long", "wide"]), default="long", show_default=True,
+              help="wide also writes prevalence_wide.csv: themes down, groups across, percentages, "
+                   "suppressed cells blank, caution and significance marks, footnotes.")
+@click.option("--reference", default=None, metavar="GROUP",
+              help="With --layout wide: mark differences against this group (VAR=GROUP if ambiguous) "
+                   "instead of against the rest of the sample.")
+@click.option("--coder-error-from", "coder_error_from", type=click.Path(path_type=Path), default=None,
+              metavar="HAND_CODES", help="Also correct each theme's prevalence for the coder's sensitivity and "
+              "specificity on these hand codes (Rogan-Gladen), beside the raw one in coder_corrected.csv.")
 @click.option("--quiet", is_flag=True, help="Print nothing on success.")
 def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...], questions: tuple[str, ...],
                        themes: tuple[str, ...], waves: tuple[str, ...], base: str, totals: bool, family: str,
                        drop_missing_wave: bool, method: str | None, confidence: float, rule_name: str | None,
-                       min_base: int | None, caution_rse: float | None, encoding: str, quiet: bool) -> None:
+                       min_base: int | None, caution_rse: float | None, encoding: str, layout: str,
+                       reference: str | None, coder_error_from: Path | None,
+                       quiet: bool) -> None:
     """Weighted theme prevalence by group and wave, with comparisons and tests.
 
     CODED_OR_CONFIG is a folder written by 'textkit code' (coded.parquet and
@@ -147,6 +158,8 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
     from ..stats.estimate import drop_missing_wave as without_missing_wave
 
     rule = _rule(rule_name, min_base, caution_rse)
+    if reference is not None and layout != "wide":
+        raise AnalysisError("--reference applies to the wide layout; add --layout wide")
     try:
         codecs.lookup(encoding)
     except LookupError:
@@ -186,17 +199,37 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
         "dropped_responses_missing_wave": dropped,
         "counts": {"prevalence": len(table), "comparisons": len(comparisons), "group_tests": len(tests)},
     }
-    write_outputs(out_dir, {"prevalence.csv": _csv(_rounded(table), encoding),
-                            "prevalence.parquet": parquet_writer(table.astype({"wave": str, "group": str})),
-                            "comparisons.csv": _csv(_rounded(comparisons), encoding),
-                            "group_tests.csv": _csv(_rounded(tests), encoding)}, manifest,
-                 inputs=_inputs(coded_or_config, record))
+    files = {"prevalence.csv": _csv(_rounded(table), encoding),
+             "prevalence.parquet": parquet_writer(table.astype({"wave": str, "group": str})),
+             "comparisons.csv": _csv(_rounded(comparisons), encoding),
+             "group_tests.csv": _csv(_rounded(tests), encoding)}
+    if layout == "wide":
+        from ..stats.crosstab import crosstab
+
+        wide = crosstab(table, comparisons, reference=reference, base=base, rule_name=rule.name)
+        try:
+            wide_bytes = wide.csv_text().encode(encoding)
+        except UnicodeEncodeError:
+            raise AnalysisError(f"the wide table's marks or labels cannot be written in '{encoding}' "
+                                "(--encoding); use utf-8-sig or utf-8") from None
+        files["prevalence_wide.csv"] = lambda path: Path(path).write_bytes(wide_bytes)
+        manifest["settings"].update(layout="wide", reference=reference)
+    extra_notes = []
+    if coder_error_from is not None:
+        from .learn import coder_error_files
+
+        extra_files, manifest["coder_error"], extra_notes = coder_error_files(
+            coder_error_from, coded_or_config, coded, theme_list, table, confidence, encoding)
+        files.update(extra_files)
+    write_outputs(out_dir, files, manifest, inputs=_inputs(coded_or_config, record))
     if not quiet:
         flags = table["flag"].value_counts()
         left_out = f"; {dropped} response(s) without a wave left out" if dropped else ""
         click.echo(f"{len(table)} estimates ({flags.get('ok', 0)} ok, {flags.get('caution', 0)} caution, "
                    f"{flags.get('suppress', 0)} suppress), {len(comparisons)} comparisons, "
                    f"{len(tests)} group tests -> {out_dir}{left_out}")
+        for note in extra_notes:
+            click.echo(f"note: {note}", err=True)
 
 
 def _rule(rule_name: str | None, min_base: int | None, caution_rse: float | None) -> Any:

@@ -21,6 +21,11 @@ Example::
     non_answers: ["n/a", "none", "-"]   # compared trimmed, lower-cased
     corrections: corrections.csv     # optional: hand corrections applied after coding
 
+One file per wave: ``survey: {2025: wave2025.csv, 2026: wave2026.csv}`` or a list of
+``{file: wave2025.csv, wave: 2025}`` items. Each file is read with the same reading
+options, its wave written into the ``wave`` column (default name ``wave``), and the
+files stacked in config order; their columns must agree.
+
 Reading options, each only for the file types it fits: ``sheet`` (name or 0-based
 index, Excel), ``table`` or ``query`` (SQLite), ``encoding`` and ``delimiter`` (CSV).
 
@@ -111,7 +116,12 @@ class SurveyConfig:
     path : Path or None
         The config file (None when built from a mapping).
     survey : Path
-        The survey file, resolved against the config's folder.
+        The survey file, resolved against the config's folder (with wave files: the first).
+    survey_waves : tuple of (str, Path)
+        One survey file per wave (``survey: {2025: a.csv, 2026: b.csv}`` or a list of
+        ``{file:, wave:}``): each file's wave value and path, in config order. The files
+        are read, given their wave in the ``wave`` column (default name ``wave``) and
+        stacked. Empty for a single survey file.
     sheet : str or int or None
         Excel sheet name or 0-based index (default: the first sheet).
     table, query : str or None
@@ -171,6 +181,7 @@ class SurveyConfig:
     nets: dict[str, tuple[str, ...]] = field(default_factory=dict)
     question_text: dict[str, str] = field(default_factory=dict)
     corrections: Path | None = None
+    survey_waves: tuple[tuple[str, Path], ...] = ()
 
     def roles(self) -> dict[str, Any]:
         """Column roles as a JSON-serialisable dict (for manifests).
@@ -259,6 +270,8 @@ class _Builder:
         if isinstance(value, Mapping):
             item = _Item("mapping", None)
             for key, sub in value.items():
+                if isinstance(key, int) and not isinstance(key, bool):
+                    key = str(key)  # a wave written as a number: survey: {2025: ...}
                 if not isinstance(key, str):
                     raise self.fail(f"key {key!r} must be text", None)
                 item.entries[key] = (None, self.from_python(sub))
@@ -346,12 +359,16 @@ class _Validator:
     def validate(self, root: _Item) -> dict[str, Any]:
         """Every field of :class:`SurveyConfig` from the config's tree, or the first problem."""
         entries, key_line = self.top_level(root)
-        out: dict[str, Any] = {"survey": self.survey_file(entries["survey"])}
+        out: dict[str, Any] = self.survey_files(entries["survey"])
+        for _, path in out["survey_waves"][1:]:
+            self.reading(entries, key_line, path)  # each wave file must suit the reading options too
         out.update(self.reading(entries, key_line, out["survey"]))
         out.update(self.column_roles(entries))
         out.update(self.design(entries.get("design", _NULL)))
         wave = entries.get("wave", _NULL)
         out["wave"] = self.column(wave, "wave")
+        if out["survey_waves"] and out["wave"] is None:
+            out["wave"] = "wave"  # wave files need a column to hold each file's wave
         self.claim(out["wave"], "wave", wave.line)
         out["groups"] = self.groups(entries.get("groups", _NULL))
         out["lexicon"] = self.path(entries.get("lexicon", _NULL), "lexicon", optional=True)
@@ -392,6 +409,46 @@ class _Validator:
                 raise self.fail(f"required key '{key}' is missing; a survey config needs "
                                 f"{', '.join(_REQUIRED)}", root.line)
         return entries, key_line
+
+    def survey_files(self, item: _Item) -> dict[str, Any]:
+        """``survey:``: one file, a mapping wave -> file, or a list of ``{file:, wave:}``."""
+        if item.kind == "mapping":
+            pairs = [(wave, line, sub) for wave, (line, sub) in item.entries.items()]
+        elif item.kind == "sequence":
+            pairs = [self.wave_file_item(sub) for sub in item.items]
+        else:
+            return {"survey": self.survey_file(item), "survey_waves": ()}
+        if not pairs:
+            raise self.fail("'survey' lists no files; name one survey file, or one per wave", item.line)
+        waves: list[tuple[str, Path]] = []
+        for wave, line, sub in pairs:
+            if not wave.strip():
+                raise self.fail("a wave value in 'survey' must be non-empty text", line)
+            path = self.survey_file(sub)
+            for other_wave, other_path in waves:
+                if other_wave == wave or other_path == path:
+                    what = f"wave {wave!r}" if other_wave == wave else f"file {path.name}"
+                    raise self.fail(f"{what} is given twice in 'survey'; each wave needs its own file",
+                                    sub.line or line)
+            waves.append((wave.strip(), path))
+        return {"survey": waves[0][1], "survey_waves": tuple(waves)}
+
+    def wave_file_item(self, item: _Item) -> tuple[str, int | None, _Item]:
+        """One ``{file: ..., wave: ...}`` item of a ``survey:`` list -> (wave, line, file item)."""
+        if item.kind != "mapping":
+            raise self.fail(f"each item of a 'survey' list must be {{file: ..., wave: ...}}, found "
+                            f"{_describe(item)}", item.line)
+        self.check_keys(item, ("file", "wave"), "an item of 'survey'")
+        for key in ("file", "wave"):
+            if key not in item.entries:
+                raise self.fail(f"an item of 'survey' needs '{key}:' (file: the survey file, wave: its wave)",
+                                item.line)
+        wave = item.entries["wave"][1]
+        if wave.kind != "scalar" or isinstance(wave.value, bool):
+            raise self.fail(f"'wave' of a survey file must be a value such as 2026, found {_describe(wave)}",
+                            wave.line)
+        text = wave.value if isinstance(wave.value, str) else str(wave.text)
+        return text, wave.line, item.entries["file"][1]
 
     def survey_file(self, item: _Item) -> Path:
         survey = self.path(item, "survey")

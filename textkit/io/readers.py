@@ -37,6 +37,7 @@ from __future__ import annotations
 import codecs
 import csv
 import difflib
+import hashlib
 import io
 import re
 import sqlite3
@@ -47,8 +48,17 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import InputError, ProblemCollector
 from .config import SURVEY_FORMATS, SurveyConfig, normalise_answer, reading_option_misfit, survey_format
+from .data_checks import (
+    RowPlaces,
+    add_rows,
+    check_design_labels,
+    check_fpc,
+    check_ids,
+    check_wave_values,
+    check_weights,
+)
 from .output import file_sha256
 from .yaml_files import check_regular_file
 
@@ -82,13 +92,18 @@ class SurveyData:
     notes : list of str
         Things the user should know (encoding fallback, zero weights...).
     source_sha256 : str
-        Hex SHA-256 of the survey file's bytes (for manifests).
+        Hex SHA-256 of the survey file's bytes (for manifests); for wave files, of
+        their waves and hashes.
+    files : list of dict
+        For a survey stacked from wave files: ``wave``, ``path``, ``sha256`` and
+        ``rows`` of each file, in stacking order (empty for one file).
     """
 
     frame: pd.DataFrame
     config: SurveyConfig
     notes: list[str] = field(default_factory=list)
     source_sha256: str = ""
+    files: list[dict] = field(default_factory=list)
 
     @property
     def n_responses(self) -> int:
@@ -564,8 +579,12 @@ def _label_text(series: pd.Series) -> pd.Series:
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
 
 
-def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: list[str]) -> pd.Series:
-    """Series -> float64; a value that is not a number is an error naming its row."""
+def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: list[str],
+               problems: tuple[ProblemCollector, RowPlaces] | None = None) -> pd.Series:
+    """Series -> float64; a value that is not a number is an error naming its row.
+
+    With ``problems`` every such value is recorded there (and read as NaN) instead.
+    """
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
         return series.astype(np.float64)
     text = _label_text(series)
@@ -578,7 +597,10 @@ def _as_number(series: pd.Series, role: str, column: str, source: Path, notes: l
             numbers = pd.to_numeric(text.str.replace(",", ".", regex=False), errors="coerce")
             bad = (text.notna() & numbers.isna()).to_numpy()
             notes.append(f"{source}: column {column!r} uses decimal commas; read 1,5 as 1.5")
-    if bad.any():
+    if bad.any() and problems is not None:
+        collector, places = problems
+        add_rows(collector, places, bad, column, lambda p: f"{role} {text.iloc[p]!r} is not a number")
+    elif bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise InputError(f"{role} {text.iloc[row]!r} is not a number", source=source, row=row + 1,
                          column=column)
@@ -655,71 +677,6 @@ def _check_columns_present(frame: pd.DataFrame, config: SurveyConfig, source: Pa
                      column=column)
 
 
-def _check_ids(ids: pd.Series, column: str, source: Path) -> None:
-    missing = ids.isna().to_numpy()
-    if missing.any():
-        raise InputError("missing response id; every row needs a unique id", source=source,
-                         row=int(np.flatnonzero(missing)[0]) + 1, column=column)
-    repeat = ids.duplicated(keep="first").to_numpy()
-    if repeat.any():
-        second = int(np.flatnonzero(repeat)[0])
-        value = ids.iloc[second]
-        first = int(np.flatnonzero((ids == value).to_numpy())[0])
-        n_repeated = int(ids[repeat].nunique())
-        more = f" ({n_repeated - 1} other id(s) repeat too)" if n_repeated > 1 else ""
-        raise InputError(f"response id {value!r} appears twice, in rows {first + 1} and {second + 1}{more}; "
-                         "ids must be unique", source=source, row=second + 1, column=column)
-
-
-def _check_weights(weights: pd.Series, column: str, source: Path, notes: list[str]) -> None:
-    values = weights.to_numpy(dtype=np.float64)
-    checks = ((np.isnan(values), "missing weight; every response needs one (0 leaves it out of estimates)"),
-              (np.isinf(values), "infinite weight"),
-              (values < 0, "negative weight {value}; weights must be 0 or more"))
-    for bad, message in checks:
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise InputError(message.format(value=values[row]), source=source, row=row + 1, column=column)
-    zero = int((values == 0).sum())
-    if zero == len(values):
-        raise InputError("every weight is 0; at least one response must have a positive weight",
-                         source=source, column=column)
-    if zero:
-        notes.append(f"{source}: {zero} response(s) have weight 0 in column {column!r}; they are kept "
-                     "but do not count in weighted estimates")
-
-
-def _check_fpc(fpc: pd.Series, strata: pd.Series | None, clusters: pd.Series | None, column: str,
-               source: Path) -> None:
-    values = fpc.to_numpy(dtype=np.float64)
-    for bad, message in ((np.isnan(values), "missing fpc (population size of the stratum)"),
-                         (~np.isfinite(values) | (values <= 0),
-                          "fpc {value} is not a positive population size")):
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise InputError(message.format(value=values[row]), source=source, row=row + 1, column=column)
-    stratum = strata if strata is not None else pd.Series("(all)", index=fpc.index, dtype="str")
-    first_value = fpc.groupby(stratum, sort=False).transform("first")
-    differs = (fpc != first_value).to_numpy()
-    if differs.any():
-        row = int(np.flatnonzero(differs)[0])
-        label = stratum.iloc[row]
-        raise InputError(f"fpc {values[row]:g} differs from {first_value.iloc[row]:g} given earlier for "
-                         f"stratum {label!r}; the fpc must be the same for every response of a stratum",
-                         source=source, row=row + 1, column=column)
-    # First-stage sample size: PSUs when clustered, else responses.
-    units = clusters if clusters is not None else pd.Series(np.arange(len(fpc)), index=fpc.index)
-    sampled = units.groupby(stratum, sort=False).transform("nunique").to_numpy(dtype=np.float64)
-    short = values < sampled
-    if short.any():
-        row = int(np.flatnonzero(short)[0])
-        what = "PSUs" if clusters is not None else "responses"
-        raise InputError(f"fpc {values[row]:g} for stratum {stratum.iloc[row]!r} is smaller than the "
-                         f"{int(sampled[row])} {what} sampled in it; the fpc is the population size N_h "
-                         "(a count of units), not a sampling fraction", source=source, row=row + 1,
-                         column=column)
-
-
 def _cap_answers(text: pd.Series, cap: int, what: str, source: Path, notes: list[str]) -> pd.Series:
     """Cut answers longer than ``cap`` characters to ``cap``; count what was left out in a note."""
     lengths = text.str.len()
@@ -763,12 +720,19 @@ def check_hand_code_ids(frame: pd.DataFrame, codes_column: str, source: str | Pa
                                  source=source, row=row, column=codes_column)
 
 
-def read_survey(config: SurveyConfig) -> SurveyData:
+def read_survey(config: SurveyConfig, *, missing_design: str = "refuse") -> SurveyData:
     """Read the survey a config names and check it against the config.
 
     Parameters
     ----------
     config : SurveyConfig
+        With ``survey_waves`` set, every wave file is read, given its wave value and
+        stacked (their columns must agree).
+    missing_design : {"refuse", "drop"}, default "refuse"
+        What to do when the config names weight or design columns (weight, strata,
+        cluster, fpc) that the data lacks: refuse, or leave those roles out of the
+        returned ``SurveyData.config`` with a warning in the notes (coding uses none
+        of them; estimating prevalence needs them all).
 
     Returns
     -------
@@ -781,20 +745,29 @@ def read_survey(config: SurveyConfig) -> SurveyData:
     ------
     InputError
         Naming the file, the column and (when it applies) the 1-based data row: any
-        :func:`read_table` error; a configured column the file lacks (with close
-        matches); a missing or repeated response id (both rows named); a weight that is
-        not a number, missing, infinite or negative, or all weights 0; an fpc that is
-        not a number, missing, not positive, not constant within a stratum or smaller
-        than the stratum's sample (PSUs when clustered); a question column with no
-        text at all; a missing strata or cluster value.
+        :func:`read_table` error; a wave file whose columns differ from the first
+        one's; a configured column the file lacks (with close matches); a question
+        column with no text at all.
+    DataProblemsError
+        Up to 20 row-level problems at once (the rest counted), each naming file,
+        row and column: a missing or repeated response id (both rows named); a weight
+        that is not a number, missing, infinite or negative, or all weights 0; an fpc
+        that is not a number, missing, not positive, not constant within a stratum or
+        smaller than the stratum's sample (PSUs when clustered); a missing strata or
+        cluster value; a wave cell that contradicts the wave its file is given.
     """
-    source = config.survey
-    frame, notes = read_table(source, **config.reading_options())
+    frame, notes, places, files = _read_survey_files(config)
+    source = places.sources[0]
+    problems = ProblemCollector()
+    if config.survey_waves:
+        frame = _give_waves(frame, config, places, problems)
+    if missing_design == "drop":
+        config = _without_absent_design(frame, config, source, notes)
     _check_columns_present(frame, config, source)
     frame = frame.copy()
 
     ids = _label_text(frame[config.id_column])
-    _check_ids(ids, config.id_column, source)
+    check_ids(ids, config.id_column, places, problems)
     frame[config.id_column] = ids
 
     cap = getattr(config, "max_answer_chars", None) or MAX_ANSWER_CHARS
@@ -809,25 +782,8 @@ def read_survey(config: SurveyConfig) -> SurveyData:
                          "non-answers such as 'n/a'")
         frame[column] = text
 
-    if config.weight is not None:
-        frame[config.weight] = _as_number(frame[config.weight], "weight", config.weight, source, notes)
-        _check_weights(frame[config.weight], config.weight, source, notes)
-
-    for role, column in (("stratum", config.strata), ("cluster", config.cluster)):
-        if column is None:
-            continue
-        labels = _label_text(frame[column])
-        missing = labels.isna().to_numpy()
-        if missing.any():
-            raise InputError(f"missing {role} value; every response must belong to a {role} of the design",
-                             source=source, row=int(np.flatnonzero(missing)[0]) + 1, column=column)
-        frame[column] = labels
-
-    if config.fpc is not None:
-        fpc = _as_number(frame[config.fpc], "fpc", config.fpc, source, notes)
-        _check_fpc(fpc, frame[config.strata] if config.strata else None,
-                   frame[config.cluster] if config.cluster else None, config.fpc, source)
-        frame[config.fpc] = fpc
+    _check_design_rows(frame, config, places, problems, notes)
+    problems.raise_if_any()
 
     for column in dict.fromkeys([c for c in (config.wave, *config.groups) if c is not None]):
         if column in (config.strata, config.cluster):
@@ -840,4 +796,102 @@ def read_survey(config: SurveyConfig) -> SurveyData:
                          f"labelled {MISSING_LABEL!r}")
         frame[column] = labels
 
-    return SurveyData(frame=frame, config=config, notes=notes, source_sha256=file_sha256(source))
+    sha256 = file_sha256(source) if not files else \
+        hashlib.sha256("\n".join(f"{f['wave']} {f['sha256']}" for f in files).encode()).hexdigest()
+    return SurveyData(frame=frame, config=config, notes=notes, source_sha256=sha256, files=files)
+
+
+def _check_design_rows(frame: pd.DataFrame, config: SurveyConfig, places: RowPlaces,
+                       problems: ProblemCollector, notes: list[str]) -> None:
+    """Convert and check the weight, strata, cluster and fpc columns in place, collecting problems."""
+    source = places.sources[0]
+    if config.weight is not None:
+        unreadable = _label_text(frame[config.weight]).notna().to_numpy().copy()
+        frame[config.weight] = _as_number(frame[config.weight], "weight", config.weight, source, notes,
+                                          problems=(problems, places))
+        unreadable &= frame[config.weight].isna().to_numpy()
+        check_weights(frame[config.weight], unreadable, config.weight, places, problems, notes)
+
+    for role, column in (("stratum", config.strata), ("cluster", config.cluster)):
+        if column is not None:
+            frame[column] = _label_text(frame[column])
+            check_design_labels(frame[column], role, column, places, problems)
+
+    if config.fpc is not None:
+        unreadable = _label_text(frame[config.fpc]).notna().to_numpy().copy()
+        fpc = _as_number(frame[config.fpc], "fpc", config.fpc, source, notes, problems=(problems, places))
+        unreadable &= fpc.isna().to_numpy()
+        check_fpc(fpc, unreadable, frame[config.strata] if config.strata else None,
+                  frame[config.cluster] if config.cluster else None, config.fpc, places, problems)
+        frame[config.fpc] = fpc
+
+
+#: Config roles that coding does without (``read_survey(missing_design="drop")``).
+_DESIGN_ROLES = ("weight", "strata", "cluster", "fpc")
+
+
+def _without_absent_design(frame: pd.DataFrame, config: SurveyConfig, source: Path,
+                           notes: list[str]) -> SurveyConfig:
+    """The config without the weight/design roles whose columns the data lacks (a warning in ``notes``)."""
+    import dataclasses
+
+    absent = {role: getattr(config, role) for role in _DESIGN_ROLES
+              if getattr(config, role) is not None and getattr(config, role) not in frame.columns}
+    if not absent:
+        return config
+    named = ", ".join(f"{role} {column!r}" for role, column in absent.items())
+    notes.append(f"warning: {source}: the data has no {named} column named in the config; coding uses none, "
+                 "so it goes on ('textkit prevalence' will need them)")
+    return dataclasses.replace(config, **dict.fromkeys(absent))
+
+
+# ---------------------------------------------------------------------------
+# one survey file per wave
+
+
+def _read_survey_files(config: SurveyConfig) -> tuple[pd.DataFrame, list[str], RowPlaces, list[dict]]:
+    """The survey frame (wave files stacked in config order), notes, row places and file records."""
+    if not config.survey_waves:
+        frame, notes = read_table(config.survey, **config.reading_options())
+        return frame, notes, RowPlaces([config.survey], [len(frame)]), []
+    frames: list[pd.DataFrame] = []
+    notes: list[str] = []
+    files: list[dict] = []
+    for wave, path in config.survey_waves:
+        frame, file_notes = read_table(path, **config.reading_options())
+        notes += file_notes
+        if frames:
+            _check_same_columns(frames[0], config.survey_waves[0][1], frame, path)
+        frames.append(frame)
+        files.append({"wave": wave, "path": str(path), "sha256": file_sha256(path), "rows": len(frame)})
+    paths = [path for _, path in config.survey_waves]
+    notes.append("stacked " + ", ".join(f"{f['rows']:,} rows of {Path(f['path']).name} (wave {f['wave']})"
+                                        for f in files))
+    stacked = pd.concat(frames, ignore_index=True)
+    return stacked, notes, RowPlaces(paths, [len(f) for f in frames]), files
+
+
+def _check_same_columns(first: pd.DataFrame, first_path: Path, frame: pd.DataFrame, path: Path) -> None:
+    """Refuse a wave file whose columns are not those of the first wave file (order may differ)."""
+    missing = [c for c in first.columns if c not in frame.columns]
+    if missing:
+        raise InputError(f"column {missing[0]!r} of the first wave file {first_path.name} is not in this "
+                         "file; every wave file needs the same columns", source=path, column=str(missing[0]))
+    extra = [c for c in frame.columns if c not in first.columns]
+    if extra:
+        raise InputError(f"column {extra[0]!r} is not in the first wave file {first_path.name}; every wave "
+                         "file needs the same columns", source=path, column=str(extra[0]))
+
+
+def _give_waves(frame: pd.DataFrame, config: SurveyConfig, places: RowPlaces,
+                problems: ProblemCollector) -> pd.DataFrame:
+    """Set the wave column to each file's wave; cells already there must agree (blank ones are filled)."""
+    lengths = np.diff(places.starts)
+    given = np.repeat(np.asarray([wave for wave, _ in config.survey_waves], dtype=object), lengths)
+    column = str(config.wave)
+    frame = frame.copy()
+    if column in frame.columns:
+        labels = _label_text(frame[column])
+        check_wave_values(labels, given, column, places, problems)
+    frame[column] = pd.Series(given, index=frame.index, dtype="str")
+    return frame

@@ -11,5 +11,7 @@ from .._lazy import lazy_exports
 __getattr__, __dir__ = lazy_exports(__name__, {
     "SurveyDesign": "design",
     "analyse": "estimate", "prevalence": "estimate", "compare_groups": "estimate", "compare_waves": "estimate",
-    "group_tests": "estimate", "ReliabilityRule": "rules", "BASE_WIDTH_RULE": "rules", "RULES": "rules",
+    "group_tests": "estimate", "crosstab": "crosstab", "Crosstab": "crosstab",
+    "ReliabilityRule": "rules", "BASE_WIDTH_RULE": "rules", "RULES": "rules",
+    "rogan_gladen": "misclassification",
 })

@@ -230,173 +230,26 @@ class SurveyDesign:
             size; a single-PSU stratum under ``"refuse"``; strata without clusters
             under ``require_clusters``; fewer than two PSUs in the design or a wave.
         """
-        import pandas as pd
-
         if one_cluster_stratum not in ONE_CLUSTER_POLICIES:
             raise DesignError(f"one_cluster_stratum must be one of {', '.join(ONE_CLUSTER_POLICIES)}, "
                               f"not '{one_cluster_stratum}'", source=source)
         roles = {"weight": weight, "strata": strata, "cluster": cluster, "fpc": fpc, "wave": wave, "id": id}
-        for role, column in roles.items():
-            if column is not None and column not in frame.columns:
-                raise DesignError(f"the {role} column is not in the data; columns are: "
-                                  f"{', '.join(map(str, frame.columns[:20]))}", source=source, column=column)
-        if require_clusters and strata is not None and cluster is None:
-            raise DesignError("the design has strata but no cluster column, and clusters are required; "
-                              "name the PSU column (design: cluster:) or turn off require_clusters",
-                              source=source, column=strata)
+        _check_roles(frame, roles, require_clusters, source)
         used = [c for c in (weight, strata, cluster, fpc, wave) if c is not None]
-        rows = np.arange(len(frame))
-        if id is not None:
-            ids_all = frame[id]
-            if ids_all.isna().any():
-                bad = int(np.flatnonzero(ids_all.isna().to_numpy())[0])
-                raise DesignError("the id is missing", source=source, row=bad + 1, column=id)
-            codes, uniques = pd.factorize(ids_all, sort=False)
-            first = np.full(len(uniques), len(frame), dtype=np.int64)
-            np.minimum.at(first, codes, rows)
-            for column in dict.fromkeys(used):
-                values = frame[column].to_numpy()
-                reference = values[first][codes]
-                same = (reference == values) | (pd.isna(reference) & pd.isna(values))
-                if not np.all(same):
-                    bad = int(np.flatnonzero(~same)[0])
-                    raise DesignError(f"the {column} value differs between rows of response "
-                                      f"'{uniques[codes[bad]]}'; design columns must be the same on every "
-                                      f"row of a response", source=source, row=bad + 1, column=column)
-            units = frame.iloc[first]
-            unit_rows = first
-            ids: tuple[Any, ...] | None = tuple(uniques)
-        else:
-            units = frame
-            unit_rows = rows
-            ids = None
-        n = len(units)
-        if n == 0:
-            raise DesignError("the survey has no responses", source=source)
-
-        def row_of(position: int) -> int:
-            return int(unit_rows[position]) + 1
-
-        # weights
-        if weight is None:
-            weights = np.ones(n)
-        else:
-            raw = pd.to_numeric(units[weight], errors="coerce").to_numpy(dtype=float)
-            bad = ~np.isfinite(raw)
-            if bad.any():
-                pos = int(np.flatnonzero(bad)[0])
-                value = units[weight].iloc[pos]
-                raise DesignError(f"the weight is missing or not a finite number ('{value}'); "
-                                  "every response needs a weight of 0 or more", source=source,
-                                  row=row_of(pos), column=weight)
-            if (raw < 0).any():
-                pos = int(np.flatnonzero(raw < 0)[0])
-                raise DesignError(f"the weight is negative ({raw[pos]:g}); weights must be 0 or more",
-                                  source=source, row=row_of(pos), column=weight)
-            if not (raw > 0).any():
-                raise DesignError("every weight is 0; at least one response needs a positive weight",
-                                  source=source, column=weight)
-            weights = raw
-
-        def codes_of(column: str, role: str) -> tuple[np.ndarray, np.ndarray]:
-            values = units[column]
-            missing = (values.isna() | (values.astype(object) == _MISSING_LABEL)).to_numpy()
-            if missing.any():
-                positions = np.flatnonzero(missing)
-                rows = ", ".join(str(row_of(int(p))) for p in positions[:5]) + (", ..." if positions.size > 5 else "")
-                fix = "; give them a wave, or leave them out (--drop-missing-wave)" if role == "wave" else ""
-                raise DesignError(f"the {role} value is missing for {positions.size} response(s), in rows "
-                                  f"{rows}; every response needs one{fix}",
-                                  source=source, row=row_of(int(positions[0])), column=column)
-            return pd.factorize(values, sort=True)
-
-        # waves
+        units = _Units.of(frame, id, used, source)
+        weights = units.weights(weight)
         if wave is not None:
-            wave_codes, wave_uniques = codes_of(wave, "wave")
+            wave_codes, wave_uniques = units.codes(wave, "wave")
             wave_labels: tuple[Any, ...] = tuple(wave_uniques.tolist())
         else:
-            wave_codes = np.zeros(n, dtype=np.int64)
-            wave_labels = ()
-        n_waves = max(len(wave_labels), 1)
-
-        # strata crossed with waves
-        if strata is not None:
-            raw_strata, strata_uniques = codes_of(strata, "stratum")
-            strata_names = [str(v) for v in strata_uniques.tolist()]
-        else:
-            raw_strata = np.zeros(n, dtype=np.int64)
-            strata_names = ["(all)"]
-        combined = wave_codes.astype(np.int64) * len(strata_names) + raw_strata
-        stratum, stratum_keys = pd.factorize(combined, sort=True)
-        stratum_keys = np.asarray(stratum_keys, dtype=np.int64)
-        stratum_wave = stratum_keys // len(strata_names)
-        stratum_labels = [
-            (f"{wave_labels[w]}/" if wave_labels else "") + strata_names[s]
-            for w, s in zip(stratum_wave, stratum_keys % len(strata_names), strict=True)
-        ]
-
-        # PSUs
-        if cluster is not None:
-            cluster_codes, cluster_uniques = codes_of(cluster, "cluster")
-            if not cluster_ids_restart:
-                # one stratum per cluster id within a wave, or the clusters are not nested
-                # (a cluster id met again in another wave is a new PSU: waves are independent)
-                in_wave = wave_codes.astype(np.int64) * len(cluster_uniques) + cluster_codes
-                first_stratum = np.full(n_waves * len(cluster_uniques), -1, dtype=np.int64)
-                first_stratum[in_wave[::-1]] = stratum[::-1]
-                clash = first_stratum[in_wave] != stratum
-                if clash.any():
-                    pos = int(np.flatnonzero(clash)[0])
-                    other = stratum_labels[first_stratum[in_wave[pos]]]
-                    name = cluster_uniques[cluster_codes[pos]]
-                    raise DesignError(
-                        f"clusters are not nested in strata: cluster '{name}' is in stratum '{other}' "
-                        f"and in stratum '{stratum_labels[stratum[pos]]}'; if cluster "
-                        "ids are numbered within each stratum, set cluster_ids_restart: true",
-                        source=source, row=row_of(pos), column=cluster)
-            pair = stratum.astype(np.int64) * (int(cluster_codes.max()) + 1) + cluster_codes
-            psu, _ = pd.factorize(pair, sort=True)
-        else:
-            psu = np.arange(n)
-        psu = np.asarray(psu, dtype=np.int64)
-        n_psus = int(psu.max()) + 1
-        psu_stratum = np.zeros(n_psus, dtype=np.int64)
+            wave_codes, wave_labels = np.zeros(units.n, dtype=np.int64), ()
+        stratum, stratum_wave, stratum_labels = _strata_by_wave(units, strata, wave_codes, wave_labels)
+        psu = _psus(units, cluster, stratum, stratum_labels, wave_codes, max(len(wave_labels), 1),
+                    cluster_ids_restart)
+        psu_stratum = np.zeros(int(psu.max()) + 1, dtype=np.int64)
         psu_stratum[psu] = stratum
-        n_strata = len(stratum_labels)
-        stratum_psus = np.bincount(psu_stratum, minlength=n_strata)
-
-        # finite-population correction
-        stratum_fpc = np.ones(n_strata)
-        if fpc is not None:
-            values = pd.to_numeric(units[fpc], errors="coerce").to_numpy(dtype=float)
-            bad = ~np.isfinite(values) | (values <= 0)
-            if bad.any():
-                pos = int(np.flatnonzero(bad)[0])
-                raise DesignError("the finite-population correction must be a positive number "
-                                  "(population size N_h, or sampling fraction n_h/N_h)",
-                                  source=source, row=row_of(pos), column=fpc)
-            per_stratum = np.full(n_strata, np.nan)
-            per_stratum[stratum] = values
-            differs = per_stratum[stratum] != values
-            if differs.any():
-                pos = int(np.flatnonzero(differs)[0])
-                raise DesignError(f"the finite-population correction differs within stratum "
-                                  f"'{stratum_labels[stratum[pos]]}'; it must be one value per stratum",
-                                  source=source, row=row_of(pos), column=fpc)
-            if np.all(values <= 1):
-                fraction = per_stratum
-            else:
-                if (per_stratum < stratum_psus).any():
-                    h = int(np.flatnonzero(per_stratum < stratum_psus)[0])
-                    pos = int(np.flatnonzero(stratum == h)[0])
-                    raise DesignError(f"stratum '{stratum_labels[h]}' has population size "
-                                      f"{per_stratum[h]:g} but {stratum_psus[h]} sampled PSUs; the "
-                                      "population size cannot be smaller than the sample", source=source,
-                                      row=row_of(pos), column=fpc)
-                fraction = stratum_psus / per_stratum
-            stratum_fpc = 1.0 - fraction
-
-        # single-PSU strata
+        stratum_psus = np.bincount(psu_stratum, minlength=len(stratum_labels))
+        stratum_fpc = _stratum_fpc(units, fpc, stratum, stratum_labels, stratum_psus)
         singles = np.flatnonzero(stratum_psus < 2)
         if singles.size and one_cluster_stratum == "refuse":
             names = ", ".join(f"'{stratum_labels[h]}'" for h in singles[:5])
@@ -418,17 +271,9 @@ class SurveyDesign:
             stratum_psus=stratum_psus, stratum_fpc=np.asarray(stratum_fpc, dtype=float),
             stratum_wave=np.asarray(stratum_wave, dtype=np.int64), stratum_labels=tuple(stratum_labels),
             wave=wave_codes.astype(np.int64) if wave is not None else None, wave_labels=wave_labels,
-            ids=ids, one_cluster_stratum=one_cluster_stratum, columns=dict(roles),
+            ids=units.ids, one_cluster_stratum=one_cluster_stratum, columns=dict(roles),
         )
-        psus_per_wave = np.bincount(design.stratum_wave, weights=design.stratum_psus, minlength=n_waves)
-        if design.n_psus < 2:
-            raise DesignError("the design has fewer than two PSUs, so no variance can be estimated",
-                              source=source)
-        if (design.wave_df() < 1).any() or (psus_per_wave < 2).any():
-            w = int(np.flatnonzero((design.wave_df() < 1) | (psus_per_wave < 2))[0])
-            where = f"wave '{wave_labels[w]}'" if wave_labels else "the design"
-            raise DesignError(f"{where} has no degrees of freedom (#PSU - #strata < 1), so no variance can "
-                              "be estimated; collapse strata or add PSUs", source=source, column=wave)
+        _check_degrees_of_freedom(design, source, wave)
         return design
 
     @classmethod
@@ -508,3 +353,204 @@ def _collapse(stratum_psus: np.ndarray, stratum_wave: np.ndarray, labels: list[s
         if len(members) == 1:
             new_fpc[code] = fpc[members[0]]
     return mapping, new_labels, new_fpc
+
+
+# --------------------------------------------------------------------------- steps of from_frame
+
+def _check_roles(frame: Any, roles: dict[str, str | None], require_clusters: bool, source: str | None) -> None:
+    """Every named column exists; strata without clusters only when clusters are not required."""
+    for role, column in roles.items():
+        if column is not None and column not in frame.columns:
+            raise DesignError(f"the {role} column is not in the data; columns are: "
+                              f"{', '.join(map(str, frame.columns[:20]))}", source=source, column=column)
+    if require_clusters and roles["strata"] is not None and roles["cluster"] is None:
+        raise DesignError("the design has strata but no cluster column, and clusters are required; "
+                          "name the PSU column (design: cluster:) or turn off require_clusters",
+                          source=source, column=roles["strata"])
+
+
+@dataclass
+class _Units:
+    """The design's units (one row each) and where each came from in the frame, for messages."""
+
+    frame: Any
+    rows: np.ndarray
+    ids: tuple[Any, ...] | None
+    source: str | None
+
+    @property
+    def n(self) -> int:
+        return len(self.frame)
+
+    def row_of(self, position: int) -> int:
+        """1-based data row of the unit at ``position``."""
+        return int(self.rows[position]) + 1
+
+    @classmethod
+    def of(cls, frame: Any, id_column: str | None, used: list[str], source: str | None) -> _Units:
+        """One unit per row, or (with an id column) per id, its design values agreeing on every row."""
+        import pandas as pd
+
+        rows = np.arange(len(frame))
+        if id_column is None:
+            units = cls(frame, rows, None, source)
+        else:
+            ids_all = frame[id_column]
+            if ids_all.isna().any():
+                bad = int(np.flatnonzero(ids_all.isna().to_numpy())[0])
+                raise DesignError("the id is missing", source=source, row=bad + 1, column=id_column)
+            codes, uniques = pd.factorize(ids_all, sort=False)
+            first = np.full(len(uniques), len(frame), dtype=np.int64)
+            np.minimum.at(first, codes, rows)
+            for column in dict.fromkeys(used):
+                values = frame[column].to_numpy()
+                reference = values[first][codes]
+                same = (reference == values) | (pd.isna(reference) & pd.isna(values))
+                if not np.all(same):
+                    bad = int(np.flatnonzero(~same)[0])
+                    raise DesignError(f"the {column} value differs between rows of response "
+                                      f"'{uniques[codes[bad]]}'; design columns must be the same on every "
+                                      f"row of a response", source=source, row=bad + 1, column=column)
+            units = cls(frame.iloc[first], first, tuple(uniques), source)
+        if units.n == 0:
+            raise DesignError("the survey has no responses", source=source)
+        return units
+
+    def weights(self, column: str | None) -> np.ndarray:
+        """Finite, non-negative weights with at least one positive (all 1 without a column)."""
+        import pandas as pd
+
+        if column is None:
+            return np.ones(self.n)
+        raw = pd.to_numeric(self.frame[column], errors="coerce").to_numpy(dtype=float)
+        bad = ~np.isfinite(raw)
+        if bad.any():
+            pos = int(np.flatnonzero(bad)[0])
+            value = self.frame[column].iloc[pos]
+            raise DesignError(f"the weight is missing or not a finite number ('{value}'); "
+                              "every response needs a weight of 0 or more", source=self.source,
+                              row=self.row_of(pos), column=column)
+        if (raw < 0).any():
+            pos = int(np.flatnonzero(raw < 0)[0])
+            raise DesignError(f"the weight is negative ({raw[pos]:g}); weights must be 0 or more",
+                              source=self.source, row=self.row_of(pos), column=column)
+        if not (raw > 0).any():
+            raise DesignError("every weight is 0; at least one response needs a positive weight",
+                              source=self.source, column=column)
+        return raw
+
+    def codes(self, column: str, role: str) -> tuple[np.ndarray, Any]:
+        """Sorted integer codes of a design column; a missing value is refused with its rows."""
+        import pandas as pd
+
+        values = self.frame[column]
+        missing = (values.isna() | (values.astype(object) == _MISSING_LABEL)).to_numpy()
+        if missing.any():
+            positions = np.flatnonzero(missing)
+            rows = ", ".join(str(self.row_of(int(p))) for p in positions[:5]) + (", ..." if positions.size > 5 else "")
+            fix = "; give them a wave, or leave them out (--drop-missing-wave)" if role == "wave" else ""
+            raise DesignError(f"the {role} value is missing for {positions.size} response(s), in rows "
+                              f"{rows}; every response needs one{fix}",
+                              source=self.source, row=self.row_of(int(positions[0])), column=column)
+        return pd.factorize(values, sort=True)
+
+
+def _strata_by_wave(units: _Units, strata: str | None, wave_codes: np.ndarray, wave_labels: tuple[Any, ...]
+                    ) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """(stratum per unit, wave per stratum, stratum labels): strata crossed with waves."""
+    import pandas as pd
+
+    if strata is not None:
+        raw_strata, strata_uniques = units.codes(strata, "stratum")
+        strata_names = [str(v) for v in strata_uniques.tolist()]
+    else:
+        raw_strata = np.zeros(units.n, dtype=np.int64)
+        strata_names = ["(all)"]
+    combined = wave_codes.astype(np.int64) * len(strata_names) + raw_strata
+    stratum, stratum_keys = pd.factorize(combined, sort=True)
+    stratum_keys = np.asarray(stratum_keys, dtype=np.int64)
+    stratum_wave = stratum_keys // len(strata_names)
+    stratum_labels = [
+        (f"{wave_labels[w]}/" if wave_labels else "") + strata_names[s]
+        for w, s in zip(stratum_wave, stratum_keys % len(strata_names), strict=True)
+    ]
+    return stratum, stratum_wave, stratum_labels
+
+
+def _psus(units: _Units, cluster: str | None, stratum: np.ndarray, stratum_labels: list[str],
+          wave_codes: np.ndarray, n_waves: int, cluster_ids_restart: bool) -> np.ndarray:
+    """PSU index per unit (every unit its own PSU without a cluster column)."""
+    import pandas as pd
+
+    if cluster is None:
+        return np.arange(units.n, dtype=np.int64)
+    cluster_codes, cluster_uniques = units.codes(cluster, "cluster")
+    if not cluster_ids_restart:
+        # one stratum per cluster id within a wave, or the clusters are not nested
+        # (a cluster id met again in another wave is a new PSU: waves are independent)
+        in_wave = wave_codes.astype(np.int64) * len(cluster_uniques) + cluster_codes
+        first_stratum = np.full(n_waves * len(cluster_uniques), -1, dtype=np.int64)
+        first_stratum[in_wave[::-1]] = stratum[::-1]
+        clash = first_stratum[in_wave] != stratum
+        if clash.any():
+            pos = int(np.flatnonzero(clash)[0])
+            other = stratum_labels[first_stratum[in_wave[pos]]]
+            name = cluster_uniques[cluster_codes[pos]]
+            raise DesignError(
+                f"clusters are not nested in strata: cluster '{name}' is in stratum '{other}' "
+                f"and in stratum '{stratum_labels[stratum[pos]]}'; if cluster "
+                "ids are numbered within each stratum, set cluster_ids_restart: true",
+                source=units.source, row=units.row_of(pos), column=cluster)
+    pair = stratum.astype(np.int64) * (int(cluster_codes.max()) + 1) + cluster_codes
+    psu, _ = pd.factorize(pair, sort=True)
+    return np.asarray(psu, dtype=np.int64)
+
+
+def _stratum_fpc(units: _Units, fpc: str | None, stratum: np.ndarray, stratum_labels: list[str],
+                 stratum_psus: np.ndarray) -> np.ndarray:
+    """Finite-population correction factor 1 - n_h/N_h per stratum (all 1 without an fpc column)."""
+    import pandas as pd
+
+    n_strata = len(stratum_labels)
+    if fpc is None:
+        return np.ones(n_strata)
+    values = pd.to_numeric(units.frame[fpc], errors="coerce").to_numpy(dtype=float)
+    bad = ~np.isfinite(values) | (values <= 0)
+    if bad.any():
+        pos = int(np.flatnonzero(bad)[0])
+        raise DesignError("the finite-population correction must be a positive number "
+                          "(population size N_h, or sampling fraction n_h/N_h)",
+                          source=units.source, row=units.row_of(pos), column=fpc)
+    per_stratum = np.full(n_strata, np.nan)
+    per_stratum[stratum] = values
+    differs = per_stratum[stratum] != values
+    if differs.any():
+        pos = int(np.flatnonzero(differs)[0])
+        raise DesignError(f"the finite-population correction differs within stratum "
+                          f"'{stratum_labels[stratum[pos]]}'; it must be one value per stratum",
+                          source=units.source, row=units.row_of(pos), column=fpc)
+    if np.all(values <= 1):
+        return 1.0 - per_stratum
+    if (per_stratum < stratum_psus).any():
+        h = int(np.flatnonzero(per_stratum < stratum_psus)[0])
+        pos = int(np.flatnonzero(stratum == h)[0])
+        raise DesignError(f"stratum '{stratum_labels[h]}' has population size "
+                          f"{per_stratum[h]:g} but {stratum_psus[h]} sampled PSUs; the "
+                          "population size cannot be smaller than the sample", source=units.source,
+                          row=units.row_of(pos), column=fpc)
+    return 1.0 - stratum_psus / per_stratum
+
+
+def _check_degrees_of_freedom(design: SurveyDesign, source: str | None, wave: str | None) -> None:
+    """At least two PSUs, and at least one degree of freedom in every wave."""
+    n_waves = max(len(design.wave_labels), 1)
+    psus_per_wave = np.bincount(design.stratum_wave, weights=design.stratum_psus, minlength=n_waves)
+    if design.n_psus < 2:
+        raise DesignError("the design has fewer than two PSUs, so no variance can be estimated",
+                          source=source)
+    if (design.wave_df() < 1).any() or (psus_per_wave < 2).any():
+        w = int(np.flatnonzero((design.wave_df() < 1) | (psus_per_wave < 2))[0])
+        where = f"wave '{design.wave_labels[w]}'" if design.wave_labels else "the design"
+        raise DesignError(f"{where} has no degrees of freedom (#PSU - #strata < 1), so no variance can "
+                          "be estimated; collapse strata or add PSUs", source=source, column=wave)
+
