@@ -461,11 +461,13 @@ class _Stages:
     def run(self, name: str, function: Callable, *args, **kwargs):
         import time
 
-        from .errors import TextkitError
+        from .errors import DataProblemsError, TextkitError
 
         started = time.perf_counter()
         try:
             value = function(*args, **kwargs)
+        except DataProblemsError:
+            raise  # its lines already name each place; its constructor takes the problems, not a message
         except TextkitError as error:
             raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
                               row=error.row, column=error.column) from error
