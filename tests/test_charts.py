@@ -106,6 +106,10 @@ def test_direct_labels_never_overlap_on_a_dense_chart():
     assert overlapping == []
     axes_box = figure.axes[0].bbox
     assert all(axes_box.x0 <= box.x0 and box.x1 <= axes_box.x1 for box in boxes)
+    # no label covers a dot
+    drawn = _collections(figure, "points:") + _collections(figure, "hollow:")
+    dots = np.vstack([figure.axes[0].transData.transform(c.get_offsets()) for c in drawn if len(c.get_offsets())])
+    assert not any(box.contains(x, y) for box in boxes for x, y in dots)
     # every value label says the value of a dot of its own group, and sits beside that dot's whisker
     shown = table[table["group_var"] == "region"]
     for text in values:
