@@ -222,22 +222,174 @@ CASES += [
      ["keyness", "survey.yaml", "--out", "coded"]),
 ]
 
+
+
+def stats_folder(name: str, *edits: tuple[str, str, str]) -> Setup:
+    """A copy of the template's prevalence results as ``name``, with (file, old, new) edits applied."""
+    def setup(folder: Path) -> None:
+        shutil.copytree(STATS_TEMPLATE, folder / name)
+        for file, old, new in edits:
+            edit(f"{name}/{file}", old, new)(folder)
+    return setup
+
+
+def into(folder_name: str, source: str, target: str) -> Setup:
+    """Move ``source`` to ``folder_name/target`` (making the folder) and point the config at it."""
+    def setup(folder: Path) -> None:
+        (folder / folder_name).mkdir(exist_ok=True)
+        shutil.move(folder / source, folder / folder_name / target)
+        key = "survey" if source == "survey.csv" else "lexicon"
+        edit("survey.yaml", f"{key}: {source}", f"{key}: {folder_name}/{target}")(folder)
+    return setup
+
+
+CHARTS = ["charts", "stats", "--out", "out", "--jobs", "1"]
+TOPICS_INTO_DATA = ["topics", "survey.yaml", "--out", "data", "--scope", "all", "--k", "2", "--max-df", "1"]
+CASES += [
+    # charts: results folders and filters
+    ("charts: folder without tables", lambda folder: (folder / "empty").mkdir(), ["charts", "empty", "--out", "out"]),
+    ("charts: no such folder", NOTHING, ["charts", "nowhere", "--out", "out"]),
+    ("charts: a file as the results folder", NOTHING, ["charts", "survey.csv", "--out", "out"]),
+    ("charts: group variable not in the data", stats_folder("stats"), [*CHARTS, "--group-var", "planet"]),
+    ("charts: theme not in the data", stats_folder("stats"), [*CHARTS, "--theme", "sunburn"]),
+    ("charts: wave not in the data", stats_folder("stats"), [*CHARTS, "--wave", "1999"]),
+    ("charts: unknown format", stats_folder("stats"), [*CHARTS, "--format", "gif"]),
+    ("charts: --dpi 72", stats_folder("stats"), [*CHARTS, "--dpi", "72"]),
+    ("charts: --question-text without wording", stats_folder("stats"), [*CHARTS, "--question-text", "low_point"]),
+    ("charts: prevalence.csv lacks a column", stats_folder("stats", ("prevalence.csv", "ci_high", "upper")), CHARTS),
+    ("charts: prevalence.csv not CSV", steps(stats_folder("stats"), put("stats/prevalence.csv", b"\x00\xff\x00")),
+     CHARTS),
+    ("charts: prevalence.csv empty", steps(stats_folder("stats"), put("stats/prevalence.csv", "")), CHARTS),
+    ("charts: estimate column is text",
+     steps(stats_folder("stats"), lambda folder: _replace_column(folder / "stats" / "prevalence.csv", "estimate",
+                                                                 "high")), CHARTS),
+    ("charts: manifest.json broken", steps(stats_folder("stats"), put("stats/manifest.json", "{not json")), CHARTS),
+    ("charts: --out is the results folder", stats_folder("stats"), ["charts", "stats", "--out", "stats"]),
+    ("charts: --out is the second results folder", steps(stats_folder("stats"), coded_folder("coded")),
+     ["charts", "stats", "coded", "--out", "coded", "--jobs", "1"]),
+    # quotes
+    ("quotes: config not yaml", put("survey.yaml", "survey: [unclosed\n"), ["quotes", "survey.yaml", "--out", "out"]),
+    ("quotes: config missing", lambda folder: (folder / "survey.yaml").unlink(), ["quotes", "survey.yaml", "--out",
+                                                                                   "out"]),
+    ("quotes: unknown theme", NOTHING, ["quotes", "survey.yaml", "--out", "out", "--theme", "sunburn"]),
+    ("quotes: unknown group variable", NOTHING, ["quotes", "survey.yaml", "--out", "out", "--group-var", "planet"]),
+    ("quotes: --by-wave without a wave", edit("survey.yaml", "wave: wave\n", ""),
+     ["quotes", "survey.yaml", "--out", "out", "--by-wave"]),
+    ("quotes: --min-words above --max-words", NOTHING,
+     ["quotes", "survey.yaml", "--out", "out", "--min-words", "20", "--max-words", "5"]),
+    ("quotes: --out is the survey file", NOTHING, ["quotes", "survey.yaml", "--out", "survey.csv"]),
+    ("quotes: survey named quotes.csv in --out", into("data", "survey.csv", "quotes.csv"),
+     ["quotes", "survey.yaml", "--out", "data"]),
+    # review
+    ("review: config missing", lambda folder: (folder / "survey.yaml").unlink(),
+     ["review", "survey.yaml", "--out", "review.xlsx"]),
+    ("review: survey has a repeated id", survey_rows("r1,queue,ok,1,2026,A", "r1,staff,ok,1,2026,A"),
+     ["review", "survey.yaml", "--out", "review.xlsx"]),
+    ("review: unknown theme", NOTHING, ["review", "survey.yaml", "--out", "review.xlsx", "--theme", "sunburn"]),
+    ("review: --group without a value", NOTHING, ["review", "survey.yaml", "--out", "review.xlsx", "--group",
+                                                  "market"]),
+    ("review: unknown question", NOTHING, ["review", "survey.yaml", "--out", "review.xlsx", "--question", "mood"]),
+    ("review: --out is the survey", NOTHING, ["review", "survey.yaml", "--out", "survey.csv"]),
+    ("review: --out is the lexicon", NOTHING, ["review", "survey.yaml", "--out", "lexicon.yaml"]),
+    ("review: --out is the survey workbook",
+     steps(workbook("plain"), lambda folder: shutil.move(folder / "survey.xlsx", folder / "review.xlsx"),
+           edit("survey.yaml", "survey: survey.xlsx", "survey: review.xlsx")),
+     ["review", "survey.yaml", "--out", "review.xlsx"]),
+    ("review: --out is a folder", lambda folder: (folder / "sheets").mkdir(),
+     ["review", "survey.yaml", "--out", "sheets"]),
+    # sample
+    ("sample: config not yaml", put("survey.yaml", "survey: [unclosed\n"),
+     ["sample", "survey.yaml", "--n", "10", "--out", "sample.xlsx"]),
+    ("sample: --n 0", NOTHING, ["sample", "survey.yaml", "--n", "0", "--out", "sample.xlsx"]),
+    ("sample: unknown stratum column", NOTHING,
+     ["sample", "survey.yaml", "--n", "10", "--out", "sample.xlsx", "--stratify", "planet"]),
+    ("sample: --enrich 1", NOTHING, ["sample", "survey.yaml", "--n", "10", "--out", "sample.xlsx", "--enrich", "1"]),
+    ("sample: a coder named twice", NOTHING,
+     ["sample", "survey.yaml", "--n", "10", "--out", "sample.xlsx", "--coders", "Ilse,Maro,Ilse"]),
+    ("sample: --out neither xlsx nor csv", NOTHING, ["sample", "survey.yaml", "--n", "10", "--out", "sample.txt"]),
+    ("sample: --out is the survey", NOTHING, ["sample", "survey.yaml", "--n", "10", "--out", "survey.csv"]),
+    ("sample: --out is the config", NOTHING, ["sample", "survey.yaml", "--n", "10", "--out", "survey.yaml"]),
+    ("sample: --out is the lexicon as CSV", into("data", "lexicon.yaml", "lexicon.csv"),
+     ["sample", "survey.yaml", "--n", "10", "--out", "data/lexicon.csv"]),
+    # lexicon diff
+    ("lexicon diff: old lexicon missing", NOTHING,
+     ["lexicon", "diff", "nowhere.yaml", "lexicon.yaml", "--survey", "survey.yaml"]),
+    ("lexicon diff: new lexicon not yaml", put("new.yaml", "themes: [\n"),
+     ["lexicon", "diff", "lexicon.yaml", "new.yaml", "--survey", "survey.yaml"]),
+    ("lexicon diff: survey config missing", NOTHING,
+     ["lexicon", "diff", "lexicon.yaml", "lexicon.yaml", "--survey", "nowhere.yaml"]),
+    ("lexicon diff: --examples -1", NOTHING,
+     ["lexicon", "diff", "lexicon.yaml", "lexicon.yaml", "--survey", "survey.yaml", "--examples", "-1"]),
+    ("lexicon diff: --out is a file", NOTHING,
+     ["lexicon", "diff", "lexicon.yaml", "lexicon.yaml", "--survey", "survey.yaml", "--out", "survey.csv"]),
+    ("lexicon diff: lexicon named lexicon_diff.csv in --out",
+     steps(lambda folder: (folder / "data").mkdir(),
+           lambda folder: shutil.copy(folder / "lexicon.yaml", folder / "data" / "lexicon_diff.csv")),
+     ["lexicon", "diff", "lexicon.yaml", "data/lexicon_diff.csv", "--survey", "survey.yaml", "--out", "data"]),
+    # topics
+    ("topics: config missing", lambda folder: (folder / "survey.yaml").unlink(),
+     ["topics", "survey.yaml", "--out", "out"]),
+    ("topics: --scope theme without --theme", NOTHING, ["topics", "survey.yaml", "--out", "out", "--scope", "theme"]),
+    ("topics: --k-range upside down", NOTHING, ["topics", "survey.yaml", "--out", "out", "--k-range", "9", "3"]),
+    ("topics: unknown question", NOTHING, ["topics", "survey.yaml", "--out", "out", "--question", "mood"]),
+    ("topics: unknown group variable", NOTHING, ["topics", "survey.yaml", "--out", "out", "--by", "planet"]),
+    ("topics: --max-df 0", NOTHING, ["topics", "survey.yaml", "--out", "out", "--max-df", "0"]),
+    ("topics: too little text for any topic", NOTHING, ["topics", "survey.yaml", "--out", "out"]),
+    # (--scope all --k 2 --max-df 1: settings under which this small survey does give topics)
+    ("topics: --out is its input folder", coded_folder("coded"),
+     ["topics", "coded", "--out", "coded", "--scope", "all", "--k", "2", "--max-df", "1"]),
+    ("topics: survey named topics.csv in --out", into("data", "survey.csv", "topics.csv"), TOPICS_INTO_DATA),
+    ("topics: lexicon named k_selection.csv in --out", into("data", "lexicon.yaml", "k_selection.csv"),
+     TOPICS_INTO_DATA),
+    # report
+    ("report: config not yaml", put("survey.yaml", "survey: [unclosed\n"), ["report", "survey.yaml", "--out", "out"]),
+    ("report: survey has a negative weight", survey_rows("r1,queue,ok,-1,2026,A", "r2,staff,ok,1,2026,A"),
+     ["report", "survey.yaml", "--out", "out"]),
+    ("report: unknown summaries group", NOTHING, ["report", "survey.yaml", "--out", "out", "--summaries", "planet"]),
+    ("report: hand codes missing", NOTHING, ["report", "survey.yaml", "--out", "out", "--hand-coded", "nowhere.csv"]),
+    ("report: --out is the survey", NOTHING, ["report", "survey.yaml", "--out", "survey.csv"]),
+    ("report: survey named prevalence.csv in --out", into("data", "survey.csv", "prevalence.csv"),
+     ["report", "survey.yaml", "--out", "data"]),
+    ("report: lexicon named manifest.json in --out", into("data", "lexicon.yaml", "manifest.json"),
+     ["report", "survey.yaml", "--out", "data"]),
+]
+
+
+def _replace_column(path: Path, column: str, value: str) -> None:
+    import csv
+
+    with open(path, encoding="utf-8-sig", newline="") as handle:
+        rows = list(csv.DictReader(handle))
+    with open(path, "w", encoding="utf-8", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=list(rows[0]))
+        writer.writeheader()
+        writer.writerows({**row, column: value} for row in rows)
+
+
 CODED_TEMPLATE: Path
+STATS_TEMPLATE: Path
 
 
 @pytest.fixture(scope="module", autouse=True)
 def coded_template(tmp_path_factory):
-    global CODED_TEMPLATE
+    global CODED_TEMPLATE, STATS_TEMPLATE
     project = tmp_path_factory.mktemp("template")
     make_project(project)
     assert main(["code", str(project / "survey.yaml"), "--out", str(project / "coded"), "--quiet"]) == 0
     CODED_TEMPLATE = project / "coded"
+    assert main(["prevalence", str(project / "coded"), "--out", str(project / "stats"), "--quiet"]) == 0
+    STATS_TEMPLATE = project / "stats"
 
 
 def test_the_corpus_is_large_and_covers_every_command():
     assert len(CASES) >= 60
     commands = {argv[0] for _, _, argv in CASES}
-    assert commands >= {"code", "prevalence", "keyness", "suggest", "agreement", "lexicon"}
+    assert commands >= {"code", "prevalence", "keyness", "suggest", "agreement", "lexicon", "charts", "quotes",
+                        "review", "sample", "topics", "report"}
+    for command in ("charts", "quotes", "review", "sample", "topics", "report"):
+        named = [name for name, _, _ in CASES if name.startswith(f"{command}:")]
+        assert len(named) >= 4 and any("--out" in name or "in --out" in name for name in named), command
+    assert sum(name.startswith("lexicon diff:") for name, _, _ in CASES) >= 4
 
 
 @pytest.mark.parametrize("name, setup, argv", CASES, ids=[name for name, _, _ in CASES])

@@ -13,6 +13,7 @@ from textkit.cli.main import main
 from textkit.errors import AnalysisError
 from textkit.io.output import render_figure
 from textkit.present import charts
+from textkit.present.style import row_label_texts
 
 THEMES = ["queues", "cost_value", "toilets", "parking"]
 GROUPS = ["Caldoria", "Tessary", "Vossland"]
@@ -55,7 +56,7 @@ def test_prevalence_chart_draws_one_point_and_whisker_per_shown_row():
     whisker_y = np.concatenate([[seg[0][1] for seg in c.get_segments()] for c in _collections(figure, "whiskers:")])
     assert not np.isclose(whisker_y, suppressed_y[0]).any()
     # ticks from the data, highest overall prevalence at the top
-    ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    ticks = row_label_texts(figure.axes[0])
     assert ticks == ["parking", "toilets", "cost_value", "queues"]
     legend = [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
     assert [entry.split(" (n=")[0] for entry in legend[:3]] == GROUPS
@@ -65,7 +66,98 @@ def test_prevalence_chart_draws_one_point_and_whisker_per_shown_row():
 def test_prevalence_chart_uses_labels_when_the_table_has_them():
     table = _prevalence().assign(label=lambda f: f["theme"].str.replace("_", " ").str.title())
     figure = charts.prevalence_chart(table, question="low_point", group_var="market")
-    assert [t.get_text() for t in figure.axes[0].get_yticklabels()][-1] == "Queues"
+    assert row_label_texts(figure.axes[0])[-1] == "Queues"
+
+
+def _dense_prevalence(n_themes: int = 30, n_groups: int = 7, seed: int = 9) -> pd.DataFrame:
+    """Many themes, many groups, overlapping intervals: labels must compete for room."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    for t in range(n_themes):
+        level = rng.uniform(0.01, 0.4)
+        rows.append(("low_point", f"theme_{t:02d}", "(all)", "(all)", 2000, level))
+        rows += [("low_point", f"theme_{t:02d}", "region", f"Region {g}", 300, max(0.0, level + rng.normal(0, 0.02)))
+                 for g in range(n_groups)]
+    frame = pd.DataFrame(rows, columns=["question", "theme", "group_var", "group", "n", "estimate"])
+    half = rng.uniform(0.005, 0.06, len(frame))
+    return frame.assign(wave="(all)", ci_low=(frame["estimate"] - half).clip(0), ci_high=frame["estimate"] + half,
+                        flag="ok")
+
+
+def _label_boxes(figure, prefix):
+    from textkit.present.style import renderer_of
+
+    renderer = renderer_of(figure)
+    texts = [t for t in figure.axes[0].texts if (t.get_gid() or "").startswith(prefix)]
+    return texts, [t.get_window_extent(renderer) for t in texts]
+
+
+def test_direct_labels_never_overlap_on_a_dense_chart():
+    table = _dense_prevalence()
+    figure = charts.prevalence_chart(table, question="low_point", group_var="region")
+    texts, boxes = _label_boxes(figure, ("value-label:", "label:group:"))
+    values = [t for t in texts if t.get_gid().startswith("value-label:")]
+    names = [t for t in texts if t.get_gid().startswith("label:group:")]
+    assert len(values) > 20  # the step keeps labels where there is room...
+    assert len(values) < (table["group_var"] == "region").sum()  # ...and drops some on this crowded chart
+    assert names and {t.get_text() for t in names} <= {f"Region {g}" for g in range(7)}
+    overlapping = [(a.get_text(), b.get_text()) for i, (a, box_a) in enumerate(zip(texts, boxes, strict=True))
+                   for b, box_b in zip(texts[i + 1:], boxes[i + 1:], strict=True) if box_a.overlaps(box_b)]
+    assert overlapping == []
+    axes_box = figure.axes[0].bbox
+    assert all(axes_box.x0 <= box.x0 and box.x1 <= axes_box.x1 for box in boxes)
+    # no label covers a dot
+    drawn = _collections(figure, "points:") + _collections(figure, "hollow:")
+    dots = np.vstack([figure.axes[0].transData.transform(c.get_offsets()) for c in drawn if len(c.get_offsets())])
+    assert not any(box.contains(x, y) for box in boxes for x, y in dots)
+    # every value label says the value of a dot of its own group, and sits beside that dot's whisker
+    shown = table[table["group_var"] == "region"]
+    for text in values:
+        group = text.get_gid().split(":", 1)[1]
+        x, y = text.xy
+        mine = shown[(shown["group"] == group) & (np.isclose(shown["ci_high"], x) | np.isclose(shown["ci_low"], x))]
+        assert f"{mine['estimate'].iloc[0] * 100:.0f}%" == text.get_text()
+
+
+def test_every_dot_gets_its_value_when_there_is_room():
+    table = _prevalence()
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    texts, boxes = _label_boxes(figure, "value-label:")
+    shown = table[(table["group_var"] == "market") & (table["flag"] != "suppress")]
+    assert sorted(t.get_text() for t in texts) == sorted(f"{v * 100:.0f}%" for v in shown["estimate"])
+    assert not any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:])
+
+
+def test_the_placement_step_drops_a_label_that_would_collide():
+    from matplotlib.figure import Figure
+
+    from textkit.present.labels import LabelRequest, place_labels
+
+    figure = Figure(figsize=(4, 2), dpi=100)
+    axes = figure.add_subplot()
+    axes.set_xlim(0, 1)
+    axes.set_ylim(0, 1)
+    same_spot = [LabelRequest("first", [(0.3, 0.5, "right")], "a", "black"),
+                 LabelRequest("second", [(0.3, 0.5, "right")], "b", "black"),
+                 LabelRequest("third", [(0.3, 0.5, "right"), (0.3, 0.5, "left")], "c", "black")]
+    placed = place_labels(axes, same_spot)
+    assert [t.get_text() for t in placed] == ["first", "third"]  # second dropped, third moved left
+    assert placed[1].get_horizontalalignment() == "right"
+
+
+def test_reshaped_tables_give_wording_labels_and_flag_reasons():
+    table = _prevalence().assign(
+        question_text="What was the low point of your visit?",
+        theme_label=lambda f: f["theme"].map({"queues": "Queues and waiting", "cost_value": "Cost and value",
+                                              "toilets": "Toilets", "parking": "Parking"}),
+        flag_reason=lambda f: np.where(f["flag"] == "caution", "relative SE 30% or more",
+                                       np.where(f["flag"] == "suppress", "base below 30", None)))
+    figure = charts.prevalence_chart(table, question="low_point", group_var="market")
+    texts = [t.get_text() for t in figure.texts]
+    assert "What was the low point of your visit?" in texts
+    assert row_label_texts(figure.axes[0])[-1] == "Queues and waiting"
+    caption = [t for t in texts if "Hollow dots" in t]
+    assert caption and "relative SE 30% or more" in caption[0] and "base below 30" in caption[0]
 
 
 def test_a_filter_value_not_in_the_data_lists_the_valid_ones():
@@ -99,7 +191,7 @@ def test_differences_sorted_with_significant_rows_distinct_and_a_zero_line():
     rows = charts.difference_rows(_comparisons(), question="low_point", kind="waves")
     figure = charts.differences_chart(rows)
     axes = figure.axes[0]
-    assert [t.get_text() for t in axes.get_yticklabels()] == ["parking", "cost_value", "toilets", "queues"]
+    assert row_label_texts(axes) == ["parking", "cost_value", "toilets", "queues"]
     significant = _collections(figure, "points:significant")[0].get_offsets()
     assert sorted(significant[:, 0]) == [-0.06, 0.05]
     assert len(_collections(figure, "points:not-significant")[0].get_offsets()) == 2
@@ -113,16 +205,22 @@ def _keyness() -> pd.DataFrame:
                          "reference": "(rest)", "term": terms, "z": z, "g2": z ** 2})
 
 
+def _bar_widths(axes) -> list[float]:
+    """Signed length of every bar drawn (one path per bar in the 'bars:' collections)."""
+    return [float(path.vertices[1, 0] - path.vertices[0, 0]) for c in axes.collections
+            if (c.get_gid() or "").startswith("bars:") for path in c.get_paths()]
+
+
 def test_keyness_bars_one_per_term_per_side_with_the_measure_named():
     figure = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", top=4)
     axes = figure.axes[0]
-    bars = [p for p in axes.patches]
-    assert len(bars) == 8
-    assert sum(p.get_width() > 0 for p in bars) == 4
-    assert set(t.get_text() for t in axes.get_yticklabels()) == {f"term {i}" for i in (0, 1, 2, 3, 8, 9, 10, 11)}
+    widths = _bar_widths(axes)
+    assert len(widths) == 8
+    assert sum(w > 0 for w in widths) == 4
+    assert set(row_label_texts(axes)) == {f"term {i}" for i in (0, 1, 2, 3, 8, 9, 10, 11)}
     assert "z-score" in axes.get_xlabel()
     g2 = charts.keyness_chart(_keyness(), question="low_point", group_var="market", group="Caldoria", measure="g2")
-    assert sum(p.get_width() < 0 for p in g2.axes[0].patches) == 6  # G2 takes the side of z
+    assert sum(w < 0 for w in _bar_widths(g2.axes[0])) == 6  # G2 takes the side of z
 
 
 def test_cooccurrence_matrix_matches_a_crosstab():
@@ -142,8 +240,8 @@ def test_topic_charts_from_the_topic_tables():
                           columns=["question", "scope", "topic", "label", "rank", "term", "weight"])
     figure = charts.topic_terms_chart(topics, question="low_point", top=5)
     panels = [a for a in figure.axes if a.get_visible()]
-    assert len(panels) == 3 and all(len(a.patches) == 5 for a in panels)
-    assert [t.get_text() for t in panels[0].get_yticklabels()][-1] == "w11"
+    assert len(panels) == 3 and all(len(_bar_widths(a)) == 5 for a in panels)
+    assert row_label_texts(panels[0])[-1] == "w11"
     k_table = pd.DataFrame({"question": "low_point", "scope": "uncoded", "k": [3, 4, 5, 6],
                             "stability": [0.6, 0.8, 0.7, 0.5], "coherence": [0.1, 0.2, 0.15, 0.1],
                             "chosen": [False, True, False, False]})
@@ -186,3 +284,35 @@ def test_charts_command_bad_input_is_one_line(tmp_path, capsys):
     blocker.write_text("x")
     assert main(["charts", str(folder), "--out", str(blocker / "sub"), "--jobs", "1"]) == 2
     assert "\n" not in capsys.readouterr().err.strip()
+
+
+def test_catalogue_draws_each_questions_own_topics_with_labels_and_wording(tmp_path):
+    from textkit.present.catalogue import chart_text, draw_chart, load_results, plan_charts
+
+    table = _prevalence()
+    extra = []
+    for code in ("topic_01", "topic_02", "money"):
+        part = table[table["theme"] == "queues"].assign(theme=code)
+        extra.append(part)
+    table = pd.concat([table, *extra], ignore_index=True)
+    table["theme_label"] = table["theme"].map({"topic_01": "ferry / late", "topic_02": "view / boat"}).fillna(
+        table["theme"])
+    table["question_text"] = "What was the low point of your visit?"
+    stats, coded = tmp_path / "stats", tmp_path / "coded"
+    stats.mkdir()
+    coded.mkdir()
+    table.to_csv(stats / "prevalence.csv", index=False)
+    (stats / "manifest.json").write_text(json.dumps({"command": "prevalence", "nets": {"money": ["cost_value"]}}))
+    codes = [{"id": t, "kind": "theme", "label": t, "question": None} for t in THEMES]
+    codes += [{"id": "topic_01", "kind": "topic", "label": "ferry / late", "question": "low_point"},
+              {"id": "topic_02", "kind": "topic", "label": "view / boat", "question": "high_point"}]
+    (coded / "manifest.json").write_text(json.dumps({"command": "code", "codes": codes, "themes": THEMES}))
+    pd.DataFrame({"question": ["low_point"], "answered": [1], **{t: [1] for t in THEMES}}).to_csv(
+        coded / "coded.csv", index=False)
+    results = load_results([stats, coded])
+    spec = next(s for s in plan_charts(results) if s.kind == "prevalence" and s.arguments["group_var"] == "market")
+    text = chart_text(results, spec)
+    assert text.subtitle == "What was the low point of your visit?"
+    rows = row_label_texts(draw_chart(results, spec, text=text).axes[0])
+    assert "Topic: ferry / late" in rows and "Money (net)" in rows
+    assert not any("view / boat" in r for r in rows)  # the other question's topic is left out

@@ -7,7 +7,7 @@ keyness) use directly. :func:`write_coded` writes it atomically.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -519,11 +519,13 @@ class _Stages:
     def run(self, name: str, function: Callable, *args, **kwargs):
         import time
 
-        from .errors import TextkitError
+        from .errors import DataProblemsError, TextkitError
 
         started = time.perf_counter()
         try:
             value = function(*args, **kwargs)
+        except DataProblemsError:
+            raise  # its lines already name each place; its constructor takes the problems, not a message
         except TextkitError as error:
             raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
                               row=error.row, column=error.column) from error
@@ -768,15 +770,18 @@ def build_report(config: str | Path | SurveyConfig, *, summaries: str | None = N
                         inputs=inputs_read)
 
 
-def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
+def write_report(report: SurveyReport, out_dir: str | Path,
+                 inputs: Iterable[str | Path | None] = ()) -> list[Path]:
     """Write a :class:`SurveyReport` into ``out_dir`` (subfolders included), all files or none.
 
-    Through :func:`textkit.io.output.write_outputs`: an output that would replace an input is refused.
+    Through :func:`textkit.io.output.write_outputs`: an output that would replace one of the
+    report's inputs (config, survey, lexicon, hand codes) or of ``inputs`` is refused first.
     """
     from .io.output import bytes_writer
 
+    every_input = [*report.inputs, *(path for path in inputs if path is not None)]
     return write_outputs(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
-                         report.manifest, inputs=report.inputs)
+                         report.manifest, inputs=every_input)
 
 
 # --------------------------------------------------------------------------- the learned coder

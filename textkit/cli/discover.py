@@ -346,7 +346,7 @@ def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: 
         "topic_answers.csv": csv_writer(result.answers, float_format=fmt),
         "k_selection.csv": csv_writer(result.k_selection, float_format=fmt),
         "topic_examples.csv": csv_writer(result.examples, float_format=fmt),
-        "topic-drafts.yaml": text_writer(draft)}, manifest)
+        "topic-drafts.yaml": text_writer(draft)}, manifest, inputs=survey.input_paths)
     if quiet:
         return
     for question, model in result.models.items():

@@ -14,6 +14,17 @@ def _print_stage(name: str, seconds: float) -> None:
     click.echo(f"  {name:<12} {seconds:7.2f} s", err=True)
 
 
+def _check_paths(out_dir: Path, hand_coded: Path | None) -> None:
+    """The cheap checks of --out and --hand-coded, before any stage runs."""
+    from ..errors import InputError
+
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError("expected an output folder, found a file; choose another --out", source=out_dir)
+    if hand_coded is not None and not hand_coded.is_file():
+        raise InputError("the hand-coded sample was not found" if not hand_coded.exists()
+                         else "the hand-coded sample is not a file", source=hand_coded, column="--hand-coded")
+
+
 def _run(config: Path, out_dir: Path, summaries: str | None, hand_coded: Path | None, quiet: bool) -> None:
     import time
 
@@ -22,13 +33,18 @@ def _run(config: Path, out_dir: Path, summaries: str | None, hand_coded: Path | 
 
     loaded = load_config(config)
     check_summary_variable(loaded, summaries)  # before any work
+    _check_paths(out_dir, hand_coded)
     started = time.perf_counter()
+    stages: list[tuple[str, float]] = []  # printed once the report is written: an error stays one line
     report = build_report(loaded, summaries=summaries, hand_coded=hand_coded,
-                          progress=None if quiet else _print_stage)
+                          progress=None if quiet else lambda name, seconds: stages.append((name, seconds)))
     write_started = time.perf_counter()
-    write_report(report, out_dir)
+    write_report(report, out_dir, inputs=[loaded.path, loaded.survey, loaded.lexicon, loaded.corrections,
+                                          hand_coded])
     if quiet:
         return
+    for name, seconds in stages:
+        _print_stage(name, seconds)
     _print_stage("write", time.perf_counter() - write_started)
     for name, reason in report.manifest["left_out"].items():
         click.echo(f"note: {name}: {reason}", err=True)

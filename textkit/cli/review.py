@@ -76,6 +76,9 @@ def review_command(config: Path, out_path: Path, lexicon_path: Path | None, them
         raise InputError("the review workbook must end in .xlsx", source=out_path)
     with steps(6, quiet) as progress:
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
+        if question is not None and question not in survey.config.questions:
+            raise InputError(f"question '{question}' is not in the survey config; valid: "
+                             f"{', '.join(survey.config.questions)}", column="--question")
         progress("building the review sheet")
         show = [c for c in (survey.config.wave, *survey.config.groups) if c]
         table = review_table(survey.coded, survey.texts.tolist(), survey.result.evidence, survey.lexicon,
@@ -123,6 +126,9 @@ def sample_command(config: Path, size: int, out_path: Path, strata: tuple[str, .
     if suffix not in (".xlsx", ".csv"):
         raise InputError("the hand-coding sheet must end in .xlsx or .csv", source=out_path)
     names = [name.strip() for name in coders.split(",") if name.strip()]
+    repeated = sorted({name for name in names if names.count(name) > 1})
+    if repeated:
+        raise InputError(f"coder '{repeated[0]}' is named twice; give each coder once", column="--coders")
     with steps(6, quiet) as progress:
         survey = code_survey(config, progress=progress, apply_corrections=False)
         progress("drawing the sample")

@@ -409,8 +409,8 @@ class TopicModel(TransformerMixin, BaseEstimator):
         self.n_distinct_ = distinct.shape[0]
         self.idf_ = np.log((1 + distinct.shape[0]) / (1 + np.bincount(distinct.indices,
                                                                      minlength=distinct.shape[1]))) + 1
+        self._check_capacity(where)  # before any arithmetic: an empty pool gets the one-line reason
         tfidf = self._tfidf(distinct)
-        self._check_capacity(where)
         binary = (distinct > 0).astype(np.float64)
         import warnings
 

@@ -16,5 +16,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "keyness_cloud": "clouds", "frequency_cloud": "clouds", "group_term_frequencies": "clouds",
     "choose_quotes": "quotes", "quotes_markdown": "quotes", "safe_quote": "quotes",
     "load_results": "catalogue", "plan_charts": "catalogue", "draw_chart": "catalogue",
-    "render_charts": "catalogue", "ChartText": "style",
+    "render_charts": "catalogue", "ChartText": "style", "place_labels": "labels", "LabelRequest": "labels",
 })

@@ -19,7 +19,7 @@ from typing import Any
 import pandas as pd
 
 from ..errors import AnalysisError, InputError
-from .style import ChartText, caption_text
+from .style import ChartText, caption_text, chart_style
 
 ALL = "(all)"
 #: Table name -> (file names tried in order, the command that writes it).
@@ -71,6 +71,59 @@ class ResultTables:
             return list(dict.fromkeys(self.tables["prevalence"]["theme"]))
         return []
 
+    def _codes(self) -> list[dict]:
+        codes = self.manifests.get("coded", {}).get("codes") or []
+        return [c for c in codes if isinstance(c, dict) and c.get("id")]
+
+    def themes_for(self, question: str) -> list[str] | None:
+        """The codes that belong to ``question``: every theme and net, and only that question's topics.
+
+        None when no coded manifest says which topic belongs where (every code is then drawn).
+        """
+        other = {str(c["id"]) for c in self._codes() if c.get("kind") == "topic" and c.get("question")
+                 and str(c["question"]) != str(question)}
+        if not other:
+            return None
+        return [t for t in self.themes_all if t not in other]
+
+    @property
+    def themes_all(self) -> list[str]:
+        """Themes, topics and nets in the order of the statistics tables (falling back to :attr:`themes`)."""
+        for name in ("prevalence", "comparisons"):
+            if name in self.tables:
+                return [str(t) for t in dict.fromkeys(self.tables[name]["theme"])]
+        return self.themes
+
+    def labels(self) -> dict[str, str]:
+        """Display names: theme labels, 'Topic: ...' for discovered topics, '... (net)' for nets."""
+        found: dict[str, str] = {}
+        for name in ("prevalence", "comparisons"):
+            table = self.tables.get(name)
+            if table is not None and "theme_label" in table.columns:
+                pairs = table[["theme", "theme_label"]].drop_duplicates("theme").dropna()
+                found.update(zip(pairs["theme"].astype(str), pairs["theme_label"].astype(str), strict=True))
+        for code in self._codes():
+            label = str(code.get("label") or found.get(str(code["id"])) or code["id"])
+            found[str(code["id"])] = f"Topic: {label}" if code.get("kind") == "topic" else label
+        nets = self.manifests.get("prevalence", {}).get("nets") or {}
+        for net in nets:
+            label = found.get(str(net), str(net))
+            found[str(net)] = (label.replace("_", " ").capitalize() if label == str(net) else label) + " (net)"
+        return found
+
+    def question_texts(self) -> dict[str, str]:
+        """Question wording from the statistics tables' ``question_text`` column or any manifest's roles."""
+        wording: dict[str, str] = {}
+        for manifest in self.manifests.values():
+            for question, text in (manifest.get("roles", {}).get("question_text") or {}).items():
+                if text:
+                    wording.setdefault(str(question), str(text))
+        table = self.tables.get("prevalence")
+        if table is not None and "question_text" in table.columns:
+            pairs = table[["question", "question_text"]].dropna().drop_duplicates("question")
+            wording.update(zip(pairs["question"].astype(str), pairs["question_text"].astype(str), strict=True))
+        return wording
+
 
 def _read(path: Path) -> pd.DataFrame:
     from ..io.readers import read_table
@@ -78,7 +131,15 @@ def _read(path: Path) -> pd.DataFrame:
     frame, _ = read_table(path)
     for column in frame.columns:
         if column in _NUMERIC:
-            frame[column] = pd.to_numeric(frame[column], errors="coerce")
+            values = pd.to_numeric(frame[column], errors="coerce")
+            text = frame[column].astype("string").str.strip()
+            bad = values.isna().to_numpy() & text.notna().to_numpy() & (text != "").fillna(False).to_numpy()
+            bad &= ~text.str.lower().isin(["nan", "inf", "-inf"]).fillna(False).to_numpy()
+            if bad.any():
+                row = int(bad.argmax())
+                raise InputError(f"expected a number, found '{text.iloc[row]}'; was the table edited by hand? "
+                                 "Run the command that makes it again", source=path, row=row + 2, column=column)
+            frame[column] = values
     return frame
 
 
@@ -233,7 +294,8 @@ def chart_text(results: ResultTables, spec: ChartSpec, question_wording: Mapping
 
     arguments = spec.arguments
     question = str(arguments.get("question", ""))
-    subtitle = (question_wording or {}).get(question) or f"Question: {question}"
+    subtitle = ((question_wording or {}).get(question) or results.question_texts().get(question)
+                or f"Question: {question}")
     table = {"prevalence": "prevalence", "differences": "comparisons", "keyness": "keyness",
              "keyness_panels": "keyness",
              "keyness_cloud": "keyness", "cooccurrence": "coded", "topic_terms": "topics",
@@ -324,10 +386,14 @@ def draw_chart(results: ResultTables, spec: ChartSpec, *, text: ChartText | None
     from . import charts, clouds
 
     arguments = dict(spec.arguments)
+    question = str(arguments.get("question", ""))
     if spec.kind == "prevalence":
-        return charts.prevalence_chart(results.require("prevalence"), text=text, **arguments)
+        themes = arguments.pop("themes", None) or results.themes_for(question)
+        return charts.prevalence_chart(results.require("prevalence"), text=text, themes=themes,
+                                       labels=results.labels(), **arguments)
     if spec.kind == "differences":
-        rows = charts.difference_rows(results.require("comparisons"), **arguments)
+        rows = charts.difference_rows(results.require("comparisons"), themes=results.themes_for(question),
+                                      labels=results.labels(), **arguments)
         if arguments.get("kind") == "vs_rest" and arguments.get("group") is None:
             rows = charts.largest_differences(rows, max_rows)
         return charts.differences_chart(rows, text=text)
@@ -345,7 +411,8 @@ def draw_chart(results: ResultTables, spec: ChartSpec, *, text: ChartText | None
         themes = [t for t in results.themes if t in coded.columns]
         for column in themes:
             coded[column] = pd.to_numeric(coded[column], errors="coerce").fillna(0)
-        return charts.cooccurrence_chart(coded, themes, question=arguments["question"], weight=weight, text=text)
+        return charts.cooccurrence_chart(coded, themes, question=arguments["question"], weight=weight, text=text,
+                                         labels=results.labels())
     if spec.kind == "topic_terms":
         return charts.topic_terms_chart(results.require("topics"), text=text, **arguments)
     if spec.kind == "k_selection":
@@ -374,7 +441,8 @@ def _render_one(spec: ChartSpec, text: ChartText, formats: tuple[str, ...], dpi:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         figure = draw_chart(_WORKER_RESULTS, spec, text=text, seed=seed, font_path=font_path)
-        files = {f"{spec.stem}.{fmt}": render_figure(figure, fmt, dpi) for fmt in formats}
+        with chart_style():  # the settings that apply when drawing into the file (text hinting)
+            files = {f"{spec.stem}.{fmt}": render_figure(figure, fmt, dpi) for fmt in formats}
     missing = sorted({str(w.message) for w in caught if "missing from font" in str(w.message)})
     return files, missing
 

@@ -29,9 +29,11 @@ from .style import (
     ChartText,
     category_colour,
     chart_style,
+    fit_side_margins,
     frame_figure,
     new_figure,
     percent_axis,
+    row_labels,
 )
 
 ALL = "(all)"
@@ -53,7 +55,9 @@ def _require(frame: pd.DataFrame, columns: Sequence[str], table: str) -> None:
 
 def _choose(frame: pd.DataFrame, column: str, value: Any, table: str) -> pd.DataFrame:
     """Rows where ``column == value`` (compared as text), or a one-line error listing the valid values."""
-    values = frame[column].astype(str)
+    values = frame[column]
+    if not pd.api.types.is_string_dtype(values):
+        values = values.astype(str)
     chosen = frame[values == str(value)]
     if chosen.empty:
         valid = ", ".join(sorted(values.unique()))
@@ -62,9 +66,22 @@ def _choose(frame: pd.DataFrame, column: str, value: Any, table: str) -> pd.Data
 
 
 def _theme_labels(frame: pd.DataFrame, labels: Mapping[str, str] | None) -> dict[str, str]:
-    found = dict(zip(frame["theme"], frame["label"], strict=False)) if "label" in frame.columns else {}
+    """Theme id -> label: the table's ``theme_label`` (or ``label``) column, overridden by ``labels``."""
+    found: dict[str, Any] = {}
+    for column in ("label", "theme_label"):
+        if column in frame.columns:
+            pairs = frame[["theme", column]].drop_duplicates("theme")
+            found.update(zip(pairs["theme"].tolist(), pairs[column].tolist(), strict=True))
     found.update(labels or {})
     return {str(k): str(v) for k, v in found.items() if isinstance(v, str) and v}
+
+
+def question_wording(frame: pd.DataFrame, question: str) -> str:
+    """The wording of ``question`` from a ``question_text`` column ('' when the table has none)."""
+    if "question_text" not in frame.columns:
+        return ""
+    texts = frame.loc[frame["question"].astype(str) == str(question), "question_text"].dropna().astype(str)
+    return texts.iloc[0] if len(texts) else ""
 
 
 def _flags(frame: pd.DataFrame) -> np.ndarray:
@@ -110,32 +127,57 @@ def prevalence_chart(prevalence: pd.DataFrame, *, question: str, group_var: str 
     theme_order = list(ranking.sort_values(ascending=True, kind="stable").index)  # bottom to top
     groups = sorted(rows["group"].astype(str).unique())
     names = _theme_labels(prevalence, labels)
+    wording = question_wording(prevalence, question)
+    frame = text or ChartText(f"{question}: theme prevalence" + ("" if group_var == ALL else f" by {group_var}"),
+                              wording)
+    frame = ChartText(frame.title, frame.subtitle, _join_lines(frame.caption, flag_note(rows)))
     with chart_style():
         figure, axes = new_figure(len(theme_order) * max(1, min(len(groups), 3) * 0.6),
                                   width=8.5 if len(groups) > 1 else 7.5)
         _draw_prevalence_dots(axes, rows, theme_order, groups)
-        axes.set_yticks(np.arange(len(theme_order)), [names.get(t, t) for t in theme_order])
+        row_labels(axes, np.arange(len(theme_order)), [names.get(t, t) for t in theme_order])
         axes.set_ylim(-0.7, len(theme_order) - 0.3)
-        axes.set_xlim(left=0)
+        top = float(np.nanmax(rows["ci_high"].to_numpy(dtype=float), initial=0.0))
+        axes.set_xlim(0, max(top * 1.12, 0.01))  # room right of the longest whisker for its value label
         percent_axis(axes.xaxis)
         axes.xaxis.grid(True)
         axes.set_axisbelow(True)
         axes.set_xlabel("Share of respondents who answered (%), with 95% interval")
-        if len(groups) == 1:
-            _label_values(axes, rows, theme_order)
         legend = axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, handletextpad=0.3,
                              title=None if group_var == ALL else group_var, title_fontproperties={"size": 8})
         legend.set_gid("legend")
-        title = text or ChartText(f"{question}: theme prevalence" + ("" if group_var == ALL else f" by {group_var}"))
-        frame_figure(figure, title)
-        figure.subplots_adjust(left=0.25, right=0.76 if len(groups) > 1 else 0.80)
+        frame_figure(figure, frame)
+        fit_side_margins(figure, axes, legend=legend)
+        _direct_labels(axes, rows, theme_order, groups)
     return figure
+
+
+def _join_lines(*lines: str) -> str:
+    return "\n".join(line for line in lines if line)
+
+
+def flag_note(rows: pd.DataFrame) -> str:
+    """One caption line naming why drawn estimates are hollow or left out (from ``flag_reason``)."""
+    if "flag_reason" not in rows.columns or "flag" not in rows.columns:
+        return ""
+    parts = []
+    for flag, marker in (("caution", "Hollow dots (use with caution)"), ("suppress", "× (not shown)")):
+        reasons = rows.loc[rows["flag"].astype(str) == flag, "flag_reason"].dropna().astype(str)
+        found = sorted({part.strip() for text in reasons for part in text.split(";") if part.strip()})
+        if found:
+            parts.append(f"{marker}: {'; '.join(found)}")
+    return ". ".join(parts) + ("." if parts else "")
+
+
+def _dodge(groups: list[str]) -> np.ndarray:
+    """Vertical offsets of each group's dot within a theme's row (first group on top)."""
+    spread = 0.7 if len(groups) > 1 else 0.0
+    return np.linspace(spread / 2, -spread / 2, len(groups)) if len(groups) > 1 else np.zeros(1)
 
 
 def _draw_prevalence_dots(axes: Any, rows: pd.DataFrame, theme_order: list[str], groups: list[str]) -> None:
     position = {theme: index for index, theme in enumerate(theme_order)}
-    spread = 0.7 if len(groups) > 1 else 0.0
-    offsets = np.linspace(spread / 2, -spread / 2, len(groups)) if len(groups) > 1 else np.zeros(1)
+    offsets = _dodge(groups)
     flags = _flags(rows)
     suppressed_y: list[float] = []
     for index, group in enumerate(groups):
@@ -162,20 +204,42 @@ def _draw_prevalence_dots(axes: Any, rows: pd.DataFrame, theme_order: list[str],
                  clip_on=False, gid="suppressed", label="× suppressed")
 
 
-def _label_values(axes: Any, rows: pd.DataFrame, theme_order: list[str]) -> None:
-    """Write the percentage right of each whisker (one group only, so labels cannot collide)."""
+def _direct_labels(axes: Any, rows: pd.DataFrame, theme_order: list[str], groups: list[str]) -> list[Any]:
+    """Group names beside the top row's dots (several groups), then each dot's value; no two overlap.
+
+    Labels go right of the whisker, else left of it, else are dropped (see
+    :func:`textkit.present.labels.place_labels`). Artists: ``gid`` ``label:group:<g>``
+    and ``value-label:<g>``.
+    """
+    from .labels import LabelRequest, place_labels, segment_boxes
+
     position = {theme: index for index, theme in enumerate(theme_order)}
-    for theme, estimate, high, flag in zip(rows["theme"], rows["estimate"], rows["ci_high"], _flags(rows),
-                                           strict=True):
-        if flag == "suppress":
-            continue
-        axes.annotate(f"{estimate * 100:.0f}%", (high, position[theme]), xytext=(4, 0),
-                      textcoords="offset points", va="center", fontsize=7, color=MUTED_INK, gid="value-label")
+    offsets = dict(zip(groups, _dodge(groups), strict=True))
+    shown = rows[_flags(rows) != "suppress"]
+    y = shown["theme"].map(position).to_numpy(dtype=float) + shown["group"].astype(str).map(offsets).to_numpy(float)
+    low, high, estimate = (shown[c].to_numpy(dtype=float) for c in ("ci_low", "ci_high", "estimate"))
+    obstacles = np.vstack([segment_boxes(axes, low, high, y, 1.0), segment_boxes(axes, estimate, estimate, y, 2.8)])
+    order = np.lexsort((shown["group"].astype(str).map({g: i for i, g in enumerate(groups)}).to_numpy(), -y))
+    requests = []
+    group_of = shown["group"].astype(str).to_numpy()
+    is_top = shown["theme"].to_numpy() == theme_order[-1] if theme_order else np.zeros(len(shown), bool)
+    if len(groups) > 1:
+        colour = {g: category_colour(i) for i, g in enumerate(groups)}
+        requests += [LabelRequest(group_of[i], [(high[i], y[i], "right"), (low[i], y[i], "left")],
+                                  f"label:group:{group_of[i]}", colour[group_of[i]], "bold")
+                     for i in order if is_top[i]]
+    requests += [LabelRequest(f"{estimate[i] * 100:.0f}%", [(high[i], y[i], "right"), (low[i], y[i], "left")],
+                              f"value-label:{group_of[i]}", MUTED_INK) for i in order]
+    return place_labels(axes, requests, obstacles=obstacles)
 
 
 def difference_rows(comparisons: pd.DataFrame, *, question: str, kind: str, group_var: str | None = None,
-                    group: str | None = None, theme: str | None = None, wave: str = ALL) -> pd.DataFrame:
+                    group: str | None = None, theme: str | None = None, wave: str = ALL,
+                    themes: Sequence[str] | None = None, labels: Mapping[str, str] | None = None) -> pd.DataFrame:
     """The comparisons one difference chart shows, with a ``row_label`` column.
+
+    Themes are named by ``labels``, else the table's ``theme_label`` column, else their id;
+    ``themes`` (optional) keeps only those themes.
 
     kind : {'waves', 'vs_rest', 'pairs'}
         ``waves``: wave against wave for the whole sample, one row per theme;
@@ -186,11 +250,15 @@ def difference_rows(comparisons: pd.DataFrame, *, question: str, kind: str, grou
     _require(comparisons, ["question", "theme", "group_var", "group_a", "group_b", "wave_a", "wave_b",
                            "difference", "ci_low", "ci_high"], "comparisons.csv")
     rows = _choose(comparisons, "question", question, "comparisons.csv")
+    if themes is not None:
+        rows = rows[rows["theme"].astype(str).isin([str(t) for t in themes]) | (rows["theme"].astype(str) == theme)]
+    lookup = _theme_labels(comparisons, labels)
+    rows = rows.assign(_name=rows["theme"].astype(str).map(lambda t: lookup.get(t, t)))
     if kind == "waves":
         rows = rows[(rows["group_var"].astype(str) == ALL) & (rows["wave_a"].astype(str) != rows["wave_b"].astype(str))]
         if rows.empty:
             raise AnalysisError("comparisons.csv has no wave-against-wave rows (only one wave was analysed)")
-        return rows.assign(row_label=rows["theme"].astype(str))
+        return rows.assign(row_label=rows["_name"])
     if kind not in ("vs_rest", "pairs"):
         raise AnalysisError(f"unknown difference kind '{kind}'; choose waves, vs_rest or pairs")
     rows = _choose(rows, "group_var", group_var, "comparisons.csv")
@@ -198,9 +266,9 @@ def difference_rows(comparisons: pd.DataFrame, *, question: str, kind: str, grou
     if kind == "vs_rest":
         rows = rows[rows["group_b"].astype(str) == "(rest)"]
         if group is None:
-            return rows.assign(row_label=rows["group_a"].astype(str) + " · " + rows["theme"].astype(str))
+            return rows.assign(row_label=rows["group_a"].astype(str) + " · " + rows["_name"])
         rows = _choose(rows, "group_a", group, "comparisons.csv")
-        return rows.assign(row_label=rows["theme"].astype(str))
+        return rows.assign(row_label=rows["_name"])
     rows = _choose(rows, "theme", theme, "comparisons.csv")
     other = rows["group_b"].astype(str).replace("(rest)", "the rest")
     return rows.assign(row_label=rows["group_a"].astype(str) + " vs " + other)
@@ -245,15 +313,16 @@ def differences_chart(rows: pd.DataFrame, *, alpha: float = 0.05, labels: Mappin
             axes.scatter(ordered["difference"].to_numpy()[chosen], y[chosen], s=28, zorder=3,
                          facecolor=colour if gid == "significant" else "white", edgecolor=colour, linewidth=1.2,
                          gid=f"points:{gid}", label=label)
-        axes.set_yticks(y, [names.get(label, label) for label in ordered["row_label"]])
+        row_labels(axes, y, [names.get(label, label) for label in ordered["row_label"]])
         axes.set_ylim(-0.7, len(ordered) - 0.3)
         axes.xaxis.set_major_formatter(_points_formatter())
         axes.xaxis.grid(True)
         axes.set_axisbelow(True)
         axes.set_xlabel("Difference in percentage points, with 95% interval")
-        axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8).set_gid("legend")
+        legend = axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8)
+        legend.set_gid("legend")
         frame_figure(figure, text or ChartText("Differences in theme prevalence"))
-        figure.subplots_adjust(left=0.27, right=0.76)
+        fit_side_margins(figure, axes, legend=legend)
     return figure
 
 
@@ -285,14 +354,16 @@ def keyness_chart(keyness: pd.DataFrame, *, question: str, group_var: str, group
         figure, axes = new_figure(n_shown, width=7.5, row_height=0.22)
         _draw_keyness_bars(axes, side, measure, top, (group, reference_name))
         axes.set_xlabel(f"{MEASURE_NAMES.get(measure, measure)}; ← {reference_name} · {group} →")
-        axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8).set_gid("legend")
+        legend = axes.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8)
+        legend.set_gid("legend")
         frame_figure(figure, text or ChartText(f"Words and phrases that set {group} apart from {reference_name}",
                                                question))
-        figure.subplots_adjust(left=0.27, right=0.74)
+        fit_side_margins(figure, axes, legend=legend)
     return figure
 
 
-def _draw_keyness_bars(axes: Any, side: pd.DataFrame, measure: str, top: int, names: tuple[str, str]) -> None:
+def _draw_keyness_bars(axes: Any, side: pd.DataFrame, measure: str, top: int, names: tuple[str, str],
+                       fontsize: float = 9) -> None:
     values = _signed_measure(side, measure)
     side = side.assign(value=values)
     left = side[side["value"] < 0].nsmallest(top, "value")
@@ -301,13 +372,30 @@ def _draw_keyness_bars(axes: Any, side: pd.DataFrame, measure: str, top: int, na
     y = np.arange(len(shown), dtype=float)
     positive = shown["value"].to_numpy() > 0
     for chosen, colour, name in ((positive, category_colour(0), names[0]), (~positive, category_colour(1), names[1])):
-        axes.barh(y[chosen], shown["value"].to_numpy()[chosen], color=colour, height=0.7,
-                  label=f"more used by {name}", gid=f"bars:{name}")
+        horizontal_bars(axes, y[chosen], shown["value"].to_numpy()[chosen], colour=colour,
+                        label=f"more used by {name}", gid=f"bars:{name}")
     axes.axvline(0, color=INK, linewidth=0.8, gid="zero-line")
-    axes.set_yticks(y, list(shown["term"].astype(str)))
+    row_labels(axes, y, list(shown["term"].astype(str)), fontsize=fontsize)
     axes.set_ylim(-0.7, max(len(shown), 1) - 0.3)
     axes.xaxis.grid(True)
     axes.set_axisbelow(True)
+
+
+def horizontal_bars(axes: Any, y: np.ndarray, values: np.ndarray, *, colour: str, gid: str, label: str | None = None,
+                    height: float = 0.7) -> Any:
+    """Horizontal bars from 0 to ``values`` at ``y`` as one PolyCollection (``gid``; one path per bar).
+
+    One collection instead of a Rectangle per bar: fewer artists to build and draw.
+    """
+    from matplotlib.collections import PolyCollection
+
+    half = height / 2
+    corners = [[(0.0, row - half), (value, row - half), (value, row + half), (0.0, row + half)]
+               for row, value in zip(np.asarray(y, float), np.asarray(values, float), strict=True)]
+    bars = PolyCollection(corners, facecolors=colour, edgecolors="none", gid=gid, label=label or "_nolegend_")
+    axes.add_collection(bars, autolim=True)
+    axes.autoscale_view()
+    return bars
 
 
 def keyness_panels(keyness: pd.DataFrame, *, question: str, group_var: str, measure: str = "z", top: int = 8,
@@ -327,16 +415,17 @@ def keyness_panels(keyness: pd.DataFrame, *, question: str, group_var: str, meas
             axes = grid[index // n_columns][index % n_columns]
             side = rows[(rows["group"].astype(str) == group) & (rows["reference"].astype(str) == reference)]
             other = "the rest" if reference == "(rest)" else reference
-            _draw_keyness_bars(axes, side, measure, top, (group, other))
+            _draw_keyness_bars(axes, side, measure, top, (group, other), fontsize=7)
             axes.set_title(f"{group} (blue) vs {other} (orange)", loc="left", fontsize=8, color=INK)
-            axes.tick_params(axis="y", labelsize=7)
             axes.tick_params(axis="x", labelsize=6)
         for index in range(len(pairs), n_rows * n_columns):
             grid[index // n_columns][index % n_columns].set_visible(False)
         frame = text or ChartText(f"Words and phrases that set each {group_var} group apart", question)
         frame_figure(figure, frame)
-        figure.supxlabel(MEASURE_NAMES.get(measure, measure), fontsize=8, y=0.9 / figure.get_figheight())
-        figure.subplots_adjust(left=0.2, right=0.97, wspace=0.95, hspace=0.45)
+        bottom = figure.subplotpars.bottom  # the axis name goes under the last row's tick labels
+        figure.supxlabel(MEASURE_NAMES.get(measure, measure), fontsize=8, y=bottom, va="bottom")
+        figure.subplots_adjust(left=0.2, right=0.97, wspace=0.95, hspace=0.4,
+                               bottom=bottom + 0.38 / figure.get_figheight())
     return figure
 
 
@@ -416,7 +505,20 @@ def cooccurrence_chart(coded: pd.DataFrame, themes: Sequence[str], *, question: 
         percent_axis(bar.ax.yaxis)
         bar.set_label("of answers with the row theme, share that also have the column theme", fontsize=7)
         frame_figure(figure, text or ChartText(f"{question}: which themes come up together", question))
+        _fit_heatmap_margins(figure, axes)
     return figure
+
+
+def _fit_heatmap_margins(figure: Any, axes: Any) -> None:
+    """Room left of the heatmap for the row names and under it for the slanted column names."""
+    from .style import renderer_of
+
+    fit_side_margins(figure, axes, max_left=0.4)
+    renderer = renderer_of(figure)
+    names = sorted(axes.get_xticklabels(), key=lambda t: len(t.get_text()), reverse=True)[:6]
+    height = max((t.get_window_extent(renderer).height for t in names), default=0.0)
+    bottom = figure.subplotpars.bottom + (height + 0.1 * figure.dpi) / (figure.get_figheight() * figure.dpi)
+    figure.subplots_adjust(bottom=min(bottom, 0.6), right=0.95)
 
 
 def topic_terms_chart(topics: pd.DataFrame, *, question: str, scope: str | None = None, top: int = 8,
@@ -444,9 +546,9 @@ def topic_terms_chart(topics: pd.DataFrame, *, question: str, scope: str | None 
             part = rows[rows["topic"] == topic]
             part = part.sort_values("rank") if "rank" in part.columns else part.sort_values("weight", ascending=False)
             part = part.head(top)[::-1]
-            axes.barh(np.arange(len(part)), part["weight"].to_numpy(dtype=float), color=category_colour(index),
-                      height=0.7, gid=f"bars:{topic}")
-            axes.set_yticks(np.arange(len(part)), list(part["term"].astype(str)), fontsize=7)
+            horizontal_bars(axes, np.arange(len(part)), part["weight"].to_numpy(dtype=float),
+                            colour=category_colour(index), gid=f"bars:{topic}")
+            row_labels(axes, np.arange(len(part)), list(part["term"].astype(str)), fontsize=7)
             label = str(part["label"].iloc[0]) if "label" in part.columns and len(part) else ""
             axes.set_title(f"{topic}: {label}" if label and label != str(topic) else str(topic), loc="left",
                            fontsize=8, color=INK)
