@@ -289,7 +289,7 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by:
 
 @click.command("topics")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for topics.csv, topic_summary.csv, topic_answers.csv, k_selection.csv, "
                    "topic_examples.csv, topic-drafts.yaml and manifest.json.")
 @click.option("--question", "questions", multiple=True, metavar="NAME",

@@ -38,7 +38,7 @@ TERM_COLUMNS = ["question", "scope", "topic", "label", "rank", "term", "weight"]
 SUMMARY_COLUMNS = ["question", "scope", "topic", "label", "n_answers", "weighted_share", "coherence",
                    "stability", "top_theme", "top_theme_overlap", "top_group_var", "top_group", "top_group_z"]
 ANSWER_COLUMNS = ["response_id", "question", "topic", "loading"]
-K_SELECTION_COLUMNS = ["question", "scope", "k", "stability", "coherence", "chosen"]
+K_SELECTION_COLUMNS = ["question", "scope", "k", "stability", "stability_se", "coherence", "chosen"]
 EXAMPLE_COLUMNS = ["question", "topic", "rank", "response_id", "loading", "text"]
 #: Terms in a topic's short label, and characters kept of an example answer.
 LABEL_TERMS = 3
