@@ -33,6 +33,8 @@ _EXPORTS = {
     "compare_waves": "stats.estimate", "group_tests": "stats.estimate", "ReliabilityRule": "stats.estimate",
     "BASE_WIDTH_RULE": "stats.estimate", "NCHS_LIKE": "stats.rules",
     "keyness": "discover.keyness", "document_term_matrix": "text.ngrams",
+    "LearnedCoder": "coding.learned", "repair_lexicon": "coding.repair", "rogan_gladen": "stats.misclassification",
+    "train_coder": "pipeline", "code_survey_with_coder": "pipeline",
 }
 
 __getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -649,3 +649,268 @@ def write_report(report: SurveyReport, out_dir: str | Path) -> list[Path]:
 
     return write_tree(out_dir, {name: bytes_writer(data) for name, data in sorted(report.files.items())},
                       report.manifest)
+
+
+# --------------------------------------------------------------------------- the learned coder
+
+#: Marks a joblib file as a textkit learned coder (and its layout version).
+CODER_FORMAT = "textkit learned coder 1"
+
+
+@dataclass(frozen=True, eq=False)
+class TrainedCoder:
+    """A :class:`~textkit.coding.learned.LearnedCoder` with its training manifest.
+
+    ``manifest``: hand-code file hash, lexicon hash, settings, seed, library versions.
+    """
+
+    coder: object
+    manifest: dict
+
+    @property
+    def report(self) -> pd.DataFrame:
+        return self.coder.report_
+
+
+def read_hand_codes_for(survey: CodedSurvey, path: str | Path, *, sheet: str | None = None,
+                        codes_column: str = "themes", text_column: str = "text", leave_out: tuple[str, ...] = ()):
+    """Hand codes of ``path`` checked against ``survey`` (ids, themes); several coders -> their majority.
+
+    Returns ``(hand, texts, place)``. Themes the lexicon lacks are refused in one line unless
+    named in ``leave_out``.
+    """
+    from .coding.agreement import consensus
+    from .coding.handcodes import HandCodes, check_ids_in_survey, hand_codes_from_frame
+    from .coding.learned import check_hand_themes
+    from .io.workbook import read_coding_file
+
+    part = read_coding_file(path, sheets=[sheet] if sheet else ())[0]
+    hand = hand_codes_from_frame(part.frame, survey.lexicon, part.place, codes_column=codes_column,
+                                 text_column=text_column)
+    unknown = [t for t in leave_out if t not in hand.themes or t in survey.lexicon.ids]
+    if unknown:
+        raise InputError(f"--leave-out {unknown[0]}: only themes the hand codes hold and the lexicon lacks can be "
+                         "left out", source=part.place)
+    keep = [i for i, t in enumerate(hand.themes) if t not in leave_out]
+    hand = HandCodes(keys=hand.keys, values=hand.values[:, keep], themes=tuple(hand.themes[i] for i in keep),
+                     in_lexicon=tuple(hand.in_lexicon[i] for i in keep), weights=hand.weights, texts=hand.texts,
+                     source=hand.source)
+    check_hand_themes(hand.themes, hand.in_lexicon, hand.values, part.place)
+    check_ids_in_survey(hand, survey.coded, part.place)
+    if len(hand.coders) > 1:
+        hand = consensus(hand)
+    return hand, survey.text_lookup(hand.keys), part.place
+
+
+def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sheet: str | None = None,
+                codes_column: str = "themes", text_column: str = "text", leave_out: tuple[str, ...] = (),
+                seed: int | None = None, progress: Callable[[str], None] | None = None,
+                **settings) -> TrainedCoder:
+    """Train a learned coder on the hand codes of a survey's answers (what ``textkit train`` runs).
+
+    ``settings`` go to :class:`~textkit.coding.learned.LearnedCoder` (``kind``, ``C``, ``min_df``,
+    ``min_positive``, ``folds``, ``lexicon_features``); ``seed`` defaults to the config's seed.
+    """
+    from .coding.learned import LearnedCoder
+    from .io.output import library_versions
+
+    step = progress or _no_progress
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
+    step("training")
+    hand, texts, place = read_hand_codes_for(survey, hand_codes, sheet=sheet, codes_column=codes_column,
+                                            text_column=text_column, leave_out=leave_out)
+    seed = survey.config.seed if seed is None else seed
+    lexicon = survey.lexicon
+    n_lexicon = len(lexicon.ids)
+    coder = LearnedCoder(lexicon, random_state=int(seed or 0), **settings).fit(texts, hand.values[:, :n_lexicon])
+    params = {k: v for k, v in coder.get_params().items() if k != "lexicon"}
+    manifest = {
+        "format": CODER_FORMAT,
+        "hand_codes": {"path": str(hand_codes), "sha256": file_sha256(hand_codes), "place": place,
+                       "answers": len(hand.keys), "coders": hand.coders},
+        "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256, "name": lexicon.name,
+                    "version": lexicon.version},
+        "survey_config": {"path": str(survey.config.path), "sha256": file_sha256(survey.config.path)},
+        "settings": params, "seed": int(seed or 0), "versions": library_versions(),
+        "themes_with_model": [t for t, m in zip(coder.themes_, coder.models_, strict=True) if m is not None],
+        "combined": dict(zip(coder.themes_, coder.combined_, strict=True)),
+        "notes": list(coder.notes_),
+    }
+    return TrainedCoder(coder=coder, manifest=manifest)
+
+
+def coder_writer(trained: TrainedCoder):
+    """Writer (for :func:`textkit.io.output.write_outputs`) of the joblib file holding coder and manifest."""
+    import joblib
+
+    payload = {"format": CODER_FORMAT, "manifest": trained.manifest, "coder": trained.coder}
+    return lambda path: joblib.dump(payload, path, compress=3)
+
+
+def load_trained_coder(path: str | Path, lexicon: Lexicon | None = None) -> TrainedCoder:
+    """Read a coder saved by ``textkit train``; refuse it for another lexicon than the one it was trained with.
+
+    Loading runs pickled code: open only coder files you made or trust.
+    """
+    import joblib
+
+    source = Path(path)
+    if not source.exists():
+        raise InputError("no such coder file (write one with 'textkit train')", source=source)
+    try:
+        payload = joblib.load(source)
+    except Exception as error:  # a truncated or foreign file: any unpickling error
+        raise InputError(f"not a readable coder file ({type(error).__name__}); write one with 'textkit train'",
+                         source=source) from error
+    if not isinstance(payload, dict) or payload.get("format") != CODER_FORMAT:
+        raise InputError(f"not a textkit coder file (expected format '{CODER_FORMAT}')", source=source)
+    trained = TrainedCoder(coder=payload["coder"], manifest=payload["manifest"])
+    wanted = trained.manifest["lexicon"]
+    if lexicon is not None and lexicon.sha256 != wanted["sha256"]:
+        raise InputError(f"the coder was trained with lexicon '{wanted['name']}' version '{wanted['version']}' "
+                         f"(sha256 {wanted['sha256'][:12]}), but the survey uses '{lexicon.name}' version "
+                         f"'{lexicon.version}' (sha256 {lexicon.sha256[:12]}); retrain with 'textkit train'",
+                         source=source)
+    return trained
+
+
+def code_survey_with_coder(config: str | Path | SurveyConfig, coder: str | Path | TrainedCoder, *,
+                           mode: str = "combined", progress: Callable[[str], None] | None = None) -> CodedSurvey:
+    """Code a survey with a learned coder (``mode``: lexicon, model or combined), then apply corrections.
+
+    ``coded`` gains ``source`` (``lexicon``, ``model`` where the model changed a code of the
+    row, ``correction``), ``model_added`` and ``model_removed`` (themes the model set or
+    cleared against the lexicon); ``model_evidence.csv`` lists each model code with its
+    score and the features that pushed it most.
+    """
+    step = progress or _no_progress
+    survey = code_survey(config, progress=step, apply_corrections=False, missing_design="drop")
+    trained = coder if isinstance(coder, TrainedCoder) else load_trained_coder(coder, survey.lexicon)
+    if trained.manifest["lexicon"]["sha256"] != survey.lexicon.sha256:
+        raise InputError("the coder was trained with another lexicon version; retrain with 'textkit train'",
+                         source=str(coder) if not isinstance(coder, TrainedCoder) else None)
+    step("coding with the model")
+    learned = trained.coder.code(survey.stream, mode=mode, lexicon_matrix=survey.result.matrix)
+    themes = list(survey.themes)
+    answered = survey.coded["answered"].to_numpy(dtype=bool)
+    final = learned.matrix.toarray().astype(np.int8) * answered[:, None].astype(np.int8)
+    lexicon_codes = survey.coded[themes].to_numpy(dtype=np.int8)
+    coded = survey.coded.copy()
+    for index, theme in enumerate(themes):
+        coded[theme] = final[:, index]
+    coded["n_themes"] = (learned.own & answered[:, None]).sum(axis=1).astype(np.int16)
+    coded["uncoded"] = (answered & (final.sum(axis=1) == 0)).astype(np.int8)
+    names = np.asarray(themes, dtype=object)
+    added, removed = (final > lexicon_codes), (final < lexicon_codes)
+    coded["model_added"] = [";".join(names[row]) for row in added]
+    coded["model_removed"] = [";".join(names[row]) for row in removed]
+    tables: dict = {}
+    notes = list(survey.notes)
+    manifest = dict(survey.manifest)
+    if survey.config.corrections is not None:
+        coded, corrections = apply_configured_corrections(coded, survey.result, survey.lexicon, survey.config)
+        tables.update(corrections["tables"])
+        notes += corrections["notes"]
+        manifest["corrections"] = corrections["manifest"]
+    changed = added.any(axis=1) | removed.any(axis=1)
+    source = coded["source"].to_numpy(dtype=object) if "source" in coded else np.full(len(coded), "lexicon", object)
+    coded["source"] = np.where(source == "correction", "correction", np.where(changed, "model", "lexicon"))
+    tables["model_evidence.csv"] = _model_evidence(trained.coder, learned, coded, final, answered)
+    decided = dict(zip(themes, learned.decided_by, strict=True))
+    manifest["coder"] = {"path": None if isinstance(coder, TrainedCoder) else str(coder),
+                         "sha256": None if isinstance(coder, TrainedCoder) else file_sha256(coder),
+                         "mode": mode, "decided_by": decided, "training": trained.manifest,
+                         "codes_changed_by_model": {"added": int(added.sum()), "removed": int(removed.sum())}}
+    notes.append(f"learned coder ({mode}): the model decides {sum(v != 'lexicon' for v in decided.values())} of "
+                 f"{len(themes)} themes; it added {int(added.sum())} and removed {int(removed.sum())} codes")
+    return CodedSurvey(coded=coded, texts=survey.texts, evidence=survey.evidence,
+                       coverage=_coverage_table(coded, survey.lexicon, survey.config), lexicon=survey.lexicon,
+                       config=survey.config, result=survey.result, notes=notes, manifest=manifest,
+                       extra_tables=tables)
+
+
+def _model_evidence(coder, learned, coded: pd.DataFrame, final: np.ndarray, answered: np.ndarray) -> pd.DataFrame:
+    """One row per code the model made (theme decided by model or union, model score >= 0, code kept)."""
+    frames = []
+    for index, theme in enumerate(learned.themes):
+        if learned.decided_by[index] == "lexicon":
+            continue
+        rows = np.flatnonzero((learned.scores[:, index] >= 0) & answered & (final[:, index] == 1))
+        frames.append(pd.DataFrame({
+            "response_id": coded["response_id"].to_numpy()[rows], "question": coded["question"].to_numpy()[rows],
+            "theme": theme, "score": np.round(learned.scores[rows, index], 4),
+            "top_features": coder.top_features(learned.features_of(rows), np.arange(len(rows)), theme)}))
+    columns = ["response_id", "question", "theme", "score", "top_features"]
+    return pd.concat(frames, ignore_index=True)[columns] if frames else pd.DataFrame(columns=columns)
+
+
+# --------------------------------------------------------------------------- prevalence and the coder's error
+
+#: Columns of the coder-corrected prevalence table.
+CODER_CORRECTED_COLUMNS = ["question", "theme", "group_var", "group", "wave", "n", "estimate", "se", "ci_low",
+                           "ci_high", "flag", "corrected_estimate", "corrected_se", "corrected_ci_low",
+                           "corrected_ci_high", "sensitivity", "specificity", "hand_positive", "hand_negative",
+                           "correction_note"]
+
+
+def coder_error_table(coded: pd.DataFrame, themes: list[str], hand_path: str | Path, lexicon: Lexicon, *,
+                      sheet: str | None = None, codes_column: str = "themes") -> pd.DataFrame:
+    """Per theme: the coded table's codes against hand codes of some of its answers.
+
+    Counts ``true_positive, false_negative, true_negative, false_positive`` over the hand-coded
+    answers that were answered (both questions pooled; several coders: their majority;
+    blank cells left out), with sensitivity and specificity.
+    """
+    from .coding.agreement import consensus
+    from .coding.handcodes import check_ids_in_survey, hand_codes_from_frame
+    from .io.workbook import read_coding_file
+
+    part = read_coding_file(hand_path, sheets=[sheet] if sheet else ())[0]
+    hand = hand_codes_from_frame(part.frame, lexicon, part.place, codes_column=codes_column)
+    check_ids_in_survey(hand, coded, part.place)
+    if len(hand.coders) > 1:
+        hand = consensus(hand)
+    index = pd.MultiIndex.from_arrays([coded["response_id"].astype(str), coded["question"].astype(str)])
+    rows = index.get_indexer(pd.MultiIndex.from_frame(hand.keys[["response_id", "question"]]))
+    answered = coded["answered"].to_numpy(dtype=bool)[rows]
+    records = []
+    for theme in themes:
+        if theme not in hand.themes:
+            continue
+        truth = hand.values[answered, hand.themes.index(theme)]
+        machine = coded[theme].to_numpy()[rows][answered]
+        known = np.isfinite(truth)
+        truth, machine = truth[known] == 1, machine[known] == 1
+        counts = {"true_positive": int((truth & machine).sum()), "false_negative": int((truth & ~machine).sum()),
+                  "true_negative": int((~truth & ~machine).sum()), "false_positive": int((~truth & machine).sum())}
+        records.append({"theme": theme, **counts})
+    table = pd.DataFrame(records, columns=["theme", "true_positive", "false_negative", "true_negative",
+                                           "false_positive"])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["sensitivity"] = table["true_positive"] / (table["true_positive"] + table["false_negative"])
+        table["specificity"] = table["true_negative"] / (table["true_negative"] + table["false_positive"])
+    return table
+
+
+def correct_prevalence_for_coder(prevalence_table: pd.DataFrame, error: pd.DataFrame, *,
+                                 confidence: float = 0.95) -> pd.DataFrame:
+    """Rogan-Gladen corrected prevalence beside each raw row (:data:`CODER_CORRECTED_COLUMNS`).
+
+    Every theme row of ``prevalence_table`` (nets are left out) with the theme's
+    sensitivity and specificity from ``error`` (:func:`coder_error_table`); the interval
+    carries the survey's variance (``se``) and the hand-coded sample's.
+    """
+    from .stats.misclassification import rogan_gladen
+
+    rows = prevalence_table[prevalence_table["theme"].isin(error["theme"])].reset_index(drop=True)
+    counts = error.set_index("theme").loc[rows["theme"]]
+    result = rogan_gladen(rows["estimate"].to_numpy(float), rows["se"].to_numpy(float) ** 2,
+                          counts["true_positive"], counts["false_negative"], counts["true_negative"],
+                          counts["false_positive"], confidence=confidence)
+    out = rows.assign(corrected_estimate=result.estimate, corrected_se=result.se, corrected_ci_low=result.ci_low,
+                      corrected_ci_high=result.ci_high, sensitivity=result.sensitivity,
+                      specificity=result.specificity,
+                      hand_positive=(counts["true_positive"] + counts["false_negative"]).to_numpy(),
+                      hand_negative=(counts["true_negative"] + counts["false_positive"]).to_numpy(),
+                      correction_note=result.reason)
+    return out[[c for c in CODER_CORRECTED_COLUMNS if c in out.columns]]

@@ -21,14 +21,21 @@ from .review import lexicon_diff_command
               help="Use this lexicon instead of the one the config names.")
 @click.option("--topics", "topics", is_flag=True,
               help="Also add NMF topic columns (topic_01 ...) found in what the lexicon leaves unexplained.")
+@click.option("--coder", "coder_path", type=click.Path(path_type=Path), default=None,
+              help="A coder written by 'textkit train': code with it (see --mode).")
+@click.option("--mode", type=click.Choice(["combined", "model", "lexicon"]), default="combined", show_default=True,
+              help="With --coder: per theme the better of lexicon, model or their union (combined), the model "
+                   "wherever it has one, or the lexicon alone.")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics: bool, quiet: bool) -> None:
-    """Code every answer of the survey described by CONFIG with its theme lexicon."""
+def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics: bool, coder_path: Path | None,
+                 mode: str, quiet: bool) -> None:
+    """Code every answer of the survey described by CONFIG with its theme lexicon (or a trained coder)."""
     from ..pipeline import code_survey, find_survey_topics, with_topics, write_coded
 
     with steps(7 if topics else 6, quiet) as progress:
         # coding uses no weight or design column: one the data lacks is a warning here
-        survey = code_survey(config, lexicon=lexicon_path, progress=progress, missing_design="drop")
+        survey = (code_survey(config, lexicon=lexicon_path, progress=progress, missing_design="drop")
+                  if coder_path is None else _code_with_coder(config, lexicon_path, coder_path, mode, progress))
         if topics:
             progress("finding topics")
             survey = with_topics(survey, find_survey_topics(survey))
@@ -55,6 +62,16 @@ def code_command(config: Path, out_dir: Path, lexicon_path: Path | None, topics:
     click.echo(f"wrote {', '.join(p.name for p in paths)} to {out_dir}")
     click.echo("caution: automated coding is an estimate - check the lexicon against a hand-coded "
                "sample before reporting.")
+
+
+def _code_with_coder(config: Path, lexicon_path: Path | None, coder_path: Path, mode: str, progress):
+    from ..errors import InputError
+    from ..pipeline import code_survey_with_coder
+
+    if lexicon_path is not None:
+        raise InputError("--lexicon and --coder cannot be combined: a coder is tied to the lexicon it was "
+                         "trained with", column="--coder")
+    return code_survey_with_coder(config, coder_path, mode=mode, progress=progress)
 
 
 @click.group("lexicon", cls=SuggestingGroup)

@@ -36,6 +36,8 @@ _LAZY_COMMANDS = {
     "charts": "textkit.cli.present:charts_command",
     "quotes": "textkit.cli.present:quotes_command",
     "topics": "textkit.cli.discover:topics_command",
+    "train": "textkit.cli.learn:train_command",
+    "mend": "textkit.cli.learn:mend_command",
 }
 
 

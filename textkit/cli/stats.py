@@ -130,12 +130,16 @@ def _inputs(source: Path, record: dict) -> list:
 @click.option("--reference", default=None, metavar="GROUP",
               help="With --layout wide: mark differences against this group (VAR=GROUP if ambiguous) "
                    "instead of against the rest of the sample.")
+@click.option("--coder-error-from", "coder_error_from", type=click.Path(path_type=Path), default=None,
+              metavar="HAND_CODES", help="Also correct each theme's prevalence for the coder's sensitivity and "
+              "specificity on these hand codes (Rogan-Gladen), beside the raw one in coder_corrected.csv.")
 @click.option("--quiet", is_flag=True, help="Print nothing on success.")
 def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...], questions: tuple[str, ...],
                        themes: tuple[str, ...], waves: tuple[str, ...], base: str, totals: bool, family: str,
                        drop_missing_wave: bool, method: str | None, confidence: float, rule_name: str | None,
                        min_base: int | None, caution_rse: float | None, encoding: str, layout: str,
-                       reference: str | None, quiet: bool) -> None:
+                       reference: str | None, coder_error_from: Path | None,
+                       quiet: bool) -> None:
     """Weighted theme prevalence by group and wave, with comparisons and tests.
 
     CODED_OR_CONFIG is a folder written by 'textkit code' (coded.parquet and
@@ -210,6 +214,13 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
                                 "(--encoding); use utf-8-sig or utf-8") from None
         files["prevalence_wide.csv"] = lambda path: Path(path).write_bytes(wide_bytes)
         manifest["settings"].update(layout="wide", reference=reference)
+    extra_notes = []
+    if coder_error_from is not None:
+        from .learn import coder_error_files
+
+        extra_files, manifest["coder_error"], extra_notes = coder_error_files(
+            coder_error_from, coded_or_config, coded, theme_list, table, confidence, encoding)
+        files.update(extra_files)
     write_outputs(out_dir, files, manifest, inputs=_inputs(coded_or_config, record))
     if not quiet:
         flags = table["flag"].value_counts()
@@ -217,6 +228,8 @@ def prevalence_command(coded_or_config: Path, out_dir: Path, by: tuple[str, ...]
         click.echo(f"{len(table)} estimates ({flags.get('ok', 0)} ok, {flags.get('caution', 0)} caution, "
                    f"{flags.get('suppress', 0)} suppress), {len(comparisons)} comparisons, "
                    f"{len(tests)} group tests -> {out_dir}{left_out}")
+        for note in extra_notes:
+            click.echo(f"note: {note}", err=True)
 
 
 def _rule(rule_name: str | None, min_base: int | None, caution_rse: float | None) -> Any:

@@ -18,5 +18,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "hand_codes_from_frame": "handcodes", "HandCodes": "handcodes",
     "apply_corrections": "corrections", "corrections_from_frame": "corrections",
     "review_table": "review", "select_for_review": "review", "draw_sample": "sampling",
-    "lexicon_diff": "lexicon_diff",
+    "lexicon_diff": "lexicon_diff", "LearnedCoder": "learned", "repair_lexicon": "repair",
 })

@@ -13,4 +13,5 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "analyse": "estimate", "prevalence": "estimate", "compare_groups": "estimate", "compare_waves": "estimate",
     "group_tests": "estimate", "crosstab": "crosstab", "Crosstab": "crosstab",
     "ReliabilityRule": "rules", "BASE_WIDTH_RULE": "rules", "RULES": "rules",
+    "rogan_gladen": "misclassification",
 })
