@@ -252,6 +252,26 @@ def test_small_survey_topics_are_codes_beside_the_themes(small_topics):
     assert_codes_beside_themes(small_topics, "high")
 
 
+def test_nothing_to_report_answers_stay_out_of_the_topic_pool_by_default(small_topics):
+    # Answers coded "nothing to report" are neither a theme nor a gap: by default they enter no
+    # pool, get no topic code and are counted as excluded; exclude= can put them back.
+    import dataclasses
+
+    from textkit.pipeline import find_survey_topics
+
+    survey = small_topics[0]
+    coded = survey.coded
+    flagged = ((coded["question"] == "low") & (np.arange(len(coded)) % 4 == 0)).to_numpy()
+    marked = dataclasses.replace(survey, coded=coded.assign(nothing_to_report=flagged.astype(np.int8)))
+    settings = {"n_topics": 4}
+    default = find_survey_topics(marked, ["low"], **settings)
+    assert default.codes.toarray()[flagged].sum() == 0
+    assert not set(default.answers["response_id"]) & set(coded.loc[flagged, "response_id"])
+    assert default.counts["excluded"] == int(flagged.sum())
+    kept = find_survey_topics(marked, ["low"], exclude=np.zeros(len(coded), bool), **settings)
+    assert kept.codes.toarray()[flagged].sum() > 0 and kept.counts["excluded"] == 0
+
+
 @pytest.mark.slow
 def test_demo_emerging_subject_rises_between_waves(demo_topics):
     # The demo's wave-2026 subject (drones, absent from the starter lexicon) must show among a

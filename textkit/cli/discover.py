@@ -317,7 +317,7 @@ def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: 
     """
     import dataclasses
 
-    from ..discover.topic_tables import find_topics, render_topic_drafts
+    from ..discover.topic_tables import find_topics, nothing_to_report_rows, render_topic_drafts
     from ..io.output import csv_writer, text_writer, write_outputs
     from ..pipeline import survey_text
 
@@ -325,7 +325,8 @@ def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: 
     chosen = _questions(survey, questions)
     variables = _group_variables(survey, by)[0] if (by or survey.roles.get("groups")) else []
     data = dataclasses.replace(survey_text(survey), groups=survey.coded[variables] if variables else None)
-    result = find_topics(data, chosen, scope=scope, theme=theme, n_topics=k, k_range=tuple(k_range),
+    result = find_topics(data, chosen, scope=scope, theme=theme, exclude=nothing_to_report_rows(survey.coded),
+                         n_topics=k, k_range=tuple(k_range),
                          min_df=min_df, max_df=max_df, random_state=int(survey.config.seed or 0),
                          language=survey.lexicon.language)
     header = ["# DRAFT themes from textkit topics - review every line before use; nothing was added to",

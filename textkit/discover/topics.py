@@ -44,11 +44,22 @@ two models are matched by the Hungarian method
 (``scipy.optimize.linear_sum_assignment``) on the average Jaccard of the top-d
 lists over depths d = 1..t, and the agreement is the mean over matched
 topics. Stability is the mean agreement of the subsample models with the
-reference; the chosen k has the highest stability (ties: the smaller k).
-NPMI coherence (Bouma 2009; mean over pairs of top terms, Lau, Newman &
-Baldwin 2014) on the pool's answers is reported beside it. The scan runs on at
-most ``scan_size`` (20,000) distinct answers drawn at random; the final model
-is fitted on all of them.
+reference, with its standard error over the runs. NPMI coherence (Bouma 2009;
+mean over pairs of top terms, Lau, Newman & Baldwin 2014) on the pool's
+answers is computed beside it. The chosen k (:func:`choose_k`) has the peak
+stability, except that among the k within one standard error of the peak
+(near-ties the criterion cannot tell apart) the most coherent one wins.
+
+The scan is cheap by design: it uses at most ``scan_size`` (5,000) distinct
+answers drawn at random, keeps the terms that pass ``min_df`` in them, and fits
+with ``scan_max_iter`` (200) and ``scan_tol`` (1e-4, scikit-learn's default)
+instead of the final fit's 500 and 1e-5. Its fits start from NNDSVDa like the
+final fit, not from the reference model's topics: a warm start would make the
+subsample models resemble the reference by construction and inflate the
+stability. The final model is fitted on every distinct answer. On the planted
+tests, the demo and the benchmark the cheap scan picks the same k as the slow
+one (up to 20,000 answers, 500 iterations, tolerance 1e-5):
+``tests/test_topics.py`` (slow set) and ``benchmarks/topics.py --compare-slow``.
 """
 
 from __future__ import annotations
@@ -559,11 +570,11 @@ class TopicModel(TransformerMixin, BaseEstimator):
         n = tfidf.shape[0]
         scan_rows = np.sort(rng.choice(n, self.scan_size, replace=False)) if n > self.scan_size else np.arange(n)
         scan_tfidf = tfidf[scan_rows]
-        # The scan set is a smaller pool: it keeps the terms that pass min_df in it (the same rule
-        # as the pool's vocabulary; on a pool within scan_size this keeps every term).
+        # A scan set drawn from a larger pool keeps the terms that pass min_df in it (the pool's own
+        # rule); a pool within scan_size keeps every term.
         high = min(int(self.k_range[1]), self.max_supported_k())
         frequency = np.bincount(scan_tfidf.indices, minlength=tfidf.shape[1])
-        present = np.flatnonzero(frequency >= self.min_df)
+        present = np.flatnonzero(frequency >= (self.min_df if n > self.scan_size else 1))
         if len(present) < TERMS_PER_TOPIC * high:  # too few for the largest k: keep every term seen
             present = np.flatnonzero(frequency > 0)
         scan_tfidf = scan_tfidf[:, present]
