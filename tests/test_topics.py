@@ -107,11 +107,13 @@ def test_planted_topics_are_recovered(n_answers, n_topics, shared, floor):
     assert precision >= floor
 
 
-def test_stability_picks_the_planted_k():
-    # Greene et al. (2014): with well separated planted topics the stability peaks at the true k
+@pytest.mark.parametrize("scan_size", [5000, 400])
+def test_stability_picks_the_planted_k(scan_size):
+    # Greene et al. (2014): with well separated planted topics the stability peaks at the true k;
+    # also when the scan uses a random half of the answers (and the terms that pass min_df in it)
     answers, _ = planted_answers(800, 5, 0.05, seed=11)
     model = TopicModel(k_range=(3, 8), min_df=3, max_df=0.5, language=None, ngram_range=(1, 1),
-                       stability_runs=4, random_state=1).fit(answers)
+                       stability_runs=4, random_state=1, scan_size=scan_size).fit(answers)
     assert model.n_topics_ == 5
     table = model.k_selection_
     assert table.loc[table["chosen"], "k"].tolist() == [5]
