@@ -11,10 +11,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from topic_fixtures import planted_answers, topic_digest
 
 from textkit.discover.topics import (
     TopicModel,
     average_jaccard,
+    choose_k,
     clause_mask,
     match_topics,
     matched_token_mask,
@@ -71,30 +73,20 @@ def test_ranking_agreement_matches_brute_force_over_permutations():
     assert ranking_agreement(first, first[::-1]) == pytest.approx(1.0)
 
 
+def test_choose_k_takes_the_peak_and_breaks_near_ties_by_coherence():
+    # Greene et al. (2014): the k of peak stability. A k within one standard error of the peak is
+    # a near-tie; among near-ties the larger mean NPMI wins, then the smaller k (our documented rule).
+    table = pd.DataFrame({"k": [3, 4, 5, 6], "stability": [0.80, 0.78, 0.70, 0.79],
+                          "stability_se": [0.03, 0.01, 0.01, 0.01], "coherence": [0.20, 0.30, 0.90, 0.25]})
+    assert choose_k(table) == 4          # 4 and 6 are near-ties of the peak at 3; 5 is not, however coherent
+    table["stability_se"] = 0.0
+    assert choose_k(table) == 3          # no noise measured: the peak itself
+    table["stability"] = [0.8, 0.8, 0.1, 0.1]
+    table["coherence"] = [0.2, 0.2, 0.0, 0.0]
+    assert choose_k(table) == 3          # exact tie in both: the smaller k
+
+
 # --------------------------------------------------------------------------- planted topics
-
-def planted_answers(n_answers: int, n_topics: int, shared: int, seed: int) -> tuple[list[str], list[list[str]]]:
-    """Answers drawn from known topic-word distributions.
-
-    Each topic owns 8 words (weights falling 8..1) and shares ``shared`` of its draws with a pool of
-    common words every topic uses. An answer takes one topic (70%) or two, and 5-10 words.
-    """
-    rng = np.random.default_rng(seed)
-    own = [[f"t{t}word{j}" for j in range(8)] for t in range(n_topics)]
-    common = [f"common{j}" for j in range(12)]
-    weights = np.arange(8, 0, -1) / np.arange(8, 0, -1).sum()
-    answers = []
-    for _ in range(n_answers):
-        topics = rng.choice(n_topics, 1 if rng.random() < 0.7 else 2, replace=False)
-        words = []
-        for _ in range(rng.integers(5, 11)):
-            if rng.random() < shared:
-                words.append(common[rng.integers(len(common))])
-            else:
-                words.append(own[int(rng.choice(topics))][rng.choice(8, p=weights)])
-        answers.append(" ".join(words))
-    return answers, own
-
 
 @pytest.mark.parametrize(("n_answers", "n_topics", "shared", "floor"), [
     (600, 4, 0.1, 0.85),
@@ -115,15 +107,17 @@ def test_planted_topics_are_recovered(n_answers, n_topics, shared, floor):
     assert precision >= floor
 
 
-def test_stability_picks_the_planted_k():
-    # Greene et al. (2014): with well separated planted topics the stability peaks at the true k
+@pytest.mark.parametrize("scan_size", [5000, 400])
+def test_stability_picks_the_planted_k(scan_size):
+    # Greene et al. (2014): with well separated planted topics the stability peaks at the true k;
+    # also when the scan uses a random half of the answers (and the terms that pass min_df in it)
     answers, _ = planted_answers(800, 5, 0.05, seed=11)
     model = TopicModel(k_range=(3, 8), min_df=3, max_df=0.5, language=None, ngram_range=(1, 1),
-                       stability_runs=4, random_state=1).fit(answers)
+                       stability_runs=4, random_state=1, scan_size=scan_size).fit(answers)
     assert model.n_topics_ == 5
     table = model.k_selection_
     assert table.loc[table["chosen"], "k"].tolist() == [5]
-    assert set(table.columns) == {"k", "stability", "coherence", "chosen"}
+    assert set(table.columns) == {"k", "stability", "stability_se", "coherence", "chosen"}
 
 
 def test_transform_reproduces_the_fit_assignment():
@@ -153,28 +147,23 @@ def test_too_small_for_k_is_refused_with_counts():
 
 # --------------------------------------------------------------------------- determinism
 
-_SCRIPT = """
-import hashlib, sys
-sys.path.insert(0, {root!r})
-sys.path.insert(0, {tests!r})
-from test_topics import planted_answers
-from textkit.discover.topics import TopicModel
-answers, _ = planted_answers(300, 4, 0.2, seed=9)
-model = TopicModel(k_range=(3, 5), min_df=3, stability_runs=2, language=None, random_state=4).fit(answers)
-payload = repr((model.terms_.tolist(), model.components_.round(12).tolist(), model.k_selection_.to_csv()))
-print(hashlib.sha256(payload.encode()).hexdigest())
-"""
+def _digest_in_child(hash_seed: str, n_answers: int, high: int) -> str:
+    script = (f"import sys; sys.path[:0] = [{str(ROOT)!r}, {str(ROOT / 'tests')!r}]; "
+              f"from topic_fixtures import topic_digest; print(topic_digest({n_answers}, {high}))")
+    done = subprocess.run([sys.executable, "-c", script], env={**os.environ, "PYTHONHASHSEED": hash_seed},
+                          capture_output=True, text=True, timeout=300, check=True)
+    return done.stdout.strip()
 
 
+def test_same_topics_in_another_process_with_another_hash_seed():
+    # fast version: this process and one child whose PYTHONHASHSEED differs from ours (a tiny corpus)
+    other = "2" if os.environ.get("PYTHONHASHSEED") == "1" else "1"
+    assert _digest_in_child(other, 120, 4) == topic_digest(120, 4)
+
+
+@pytest.mark.slow
 def test_same_topics_across_runs_and_hash_seeds():
-    script = _SCRIPT.format(root=str(ROOT), tests=str(ROOT / "tests"))
-    digests = set()
-    for seed in ("1", "2"):
-        env = {**os.environ, "PYTHONHASHSEED": seed}
-        done = subprocess.run([sys.executable, "-c", script], env=env, capture_output=True, text=True,
-                              timeout=300, check=True)
-        digests.add(done.stdout.strip())
-    assert len(digests) == 1
+    assert len({_digest_in_child(seed, 300, 5) for seed in ("1", "2")}) == 1
 
 
 # --------------------------------------------------------------------------- masks
@@ -190,7 +179,18 @@ def test_matched_clause_is_removed_and_the_rest_kept():
     assert words[widened].tolist() == ["the", "queue", "snaked", "round", "the", "block"]
 
 
-# --------------------------------------------------------------------------- the demo
+# --------------------------------------------------------------------------- surveys: small (fast) and the demo (slow)
+
+@pytest.fixture(scope="module")
+def small_topics(tmp_path_factory):
+    from topic_fixtures import write_small_survey
+
+    from textkit.pipeline import code_survey, find_survey_topics, with_topics
+
+    survey = code_survey(write_small_survey(tmp_path_factory.mktemp("small")))
+    topics = find_survey_topics(survey, ["low"], k_range=(3, 5), stability_runs=3)
+    return survey, topics, with_topics(survey, topics)
+
 
 @pytest.fixture(scope="module")
 def demo_topics():
@@ -201,30 +201,28 @@ def demo_topics():
     return survey, topics, with_topics(survey, topics)
 
 
-def test_demo_emerging_subject_rises_between_waves(demo_topics):
-    # The demo's wave-2026 subject (drones, absent from the starter lexicon) must show among a
-    # topic's top terms in the default scope, and that topic's 2026-vs-2025 prevalence difference
-    # interval must exclude zero (design-based, independent waves).
+def assert_subject_rises(prepared, question: str, marker: str) -> None:
+    """A topic with ``marker`` among its top 10 terms; its 2026-vs-2025 difference CI excludes zero."""
     from textkit.stats.design import SurveyDesign
     from textkit.stats.estimate import analyse
 
-    survey, topics, with_codes = demo_topics
+    survey, topics, with_codes = prepared
     top = topics.terms[topics.terms["rank"] <= 10]
-    holders = top.loc[top["term"].str.contains("drone"), "topic"].unique()
+    holders = top.loc[top["term"].str.contains(marker), "topic"].unique()
     assert len(holders) >= 1
     roles = survey.roles
     coded = with_codes.coded
-    design = SurveyDesign.from_roles(coded, roles, id="response_id", source="demo")
+    design = SurveyDesign.from_roles(coded, roles, id="response_id", source="test")
     comparisons = analyse(coded, list(holders), design, groups=[], wave=roles["wave"],
                           id_column="response_id").comparisons()
-    rise = comparisons[(comparisons["question"] == "low_point") & (comparisons["wave_a"].astype(str) == "2026")
+    rise = comparisons[(comparisons["question"] == question) & (comparisons["wave_a"].astype(str) == "2026")
                        & (comparisons["wave_b"].astype(str) == "2025")]
     assert len(rise)
     assert (rise["ci_low"] > 0).any()
 
 
-def test_demo_topics_are_codes_beside_the_themes(demo_topics):
-    survey, topics, with_codes = demo_topics
+def assert_codes_beside_themes(prepared, other_question: str) -> None:
+    survey, topics, with_codes = prepared
     coded = with_codes.coded
     ids = topics.topic_ids
     assert ids[0] == "topic_01" and set(ids) <= set(coded.columns)
@@ -237,12 +235,70 @@ def test_demo_topics_are_codes_beside_the_themes(demo_topics):
     # codes equal the answers listed in topic_answers.csv
     listed = topics.answers.groupby("topic").size()
     assert all(int(coded[t].sum()) == int(listed.get(t, 0)) for t in ids)
-    # high-point rows never carry a low-point topic
-    assert int(coded.loc[coded["question"] == "high_point", ids].to_numpy().sum()) == 0
+    # the other question's rows never carry this question's topics
+    assert int(coded.loc[coded["question"] == other_question, ids].to_numpy().sum()) == 0
     summary = topics.summary
     assert summary["weighted_share"].between(0, 1).all()
     assert (summary["top_theme_overlap"].between(0, 1)).all()
     assert topics.examples["text"].str.len().max() <= 200
+
+
+def test_small_survey_emerging_subject_rises_between_waves(small_topics):
+    # the invented wave-2026 subject ("skyglider") gets a topic whose rise has a CI above zero
+    assert_subject_rises(small_topics, "low", "skyglider")
+    # and the scan finds the four planted subjects of that question
+    assert small_topics[1].models["low"].n_topics_ == 4
+
+
+def test_small_survey_topics_are_codes_beside_the_themes(small_topics):
+    assert_codes_beside_themes(small_topics, "high")
+
+
+def test_nothing_to_report_answers_stay_out_of_the_topic_pool_by_default(small_topics):
+    # Answers coded "nothing to report" are neither a theme nor a gap: by default they enter no
+    # pool, get no topic code and are counted as excluded; exclude= can put them back.
+    import dataclasses
+
+    from textkit.pipeline import find_survey_topics
+
+    survey = small_topics[0]
+    coded = survey.coded
+    flagged = ((coded["question"] == "low") & (np.arange(len(coded)) % 4 == 0)).to_numpy()
+    marked = dataclasses.replace(survey, coded=coded.assign(nothing_to_report=flagged.astype(np.int8)))
+    settings = {"n_topics": 4}
+    default = find_survey_topics(marked, ["low"], **settings)
+    assert default.codes.toarray()[flagged].sum() == 0
+    assert not set(default.answers["response_id"]) & set(coded.loc[flagged, "response_id"])
+    assert default.counts["excluded"] == int(flagged.sum())
+    kept = find_survey_topics(marked, ["low"], exclude=np.zeros(len(coded), bool), **settings)
+    assert kept.codes.toarray()[flagged].sum() > 0 and kept.counts["excluded"] == 0
+
+
+@pytest.mark.slow
+def test_demo_emerging_subject_rises_between_waves(demo_topics):
+    # The demo's wave-2026 subject (drones, absent from the starter lexicon) must show among a
+    # topic's top terms in the default scope, and that topic's 2026-vs-2025 prevalence difference
+    # interval must exclude zero (design-based, independent waves).
+    assert_subject_rises(demo_topics, "low_point", "drone")
+
+
+@pytest.mark.slow
+def test_demo_topics_are_codes_beside_the_themes(demo_topics):
+    assert_codes_beside_themes(demo_topics, "high_point")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(("n_answers", "n_topics", "shared"), [(800, 5, 0.05), (600, 4, 0.1), (1500, 6, 0.1),
+                                                                (1500, 6, 0.35)])
+def test_cheap_scan_picks_the_k_of_the_slow_scan(n_answers, n_topics, shared):
+    # The default scan (looser NMF tolerance, fewer iterations) against the earlier slow settings
+    # (500 iterations, tolerance 1e-5): same k, and it is the planted k.
+    answers, _ = planted_answers(n_answers, n_topics, shared, seed=11 if n_answers == 800 else n_answers + n_topics)
+    settings = {"k_range": (3, 8), "min_df": 3, "max_df": 0.5, "language": None, "ngram_range": (1, 1),
+                "random_state": 1}
+    cheap = TopicModel(**settings).fit(answers)
+    slow = TopicModel(**settings, scan_size=20000, scan_max_iter=500, scan_tol=1e-5).fit(answers)
+    assert cheap.n_topics_ == slow.n_topics_ == n_topics
 
 
 def test_two_fits_give_the_same_topics():
@@ -261,7 +317,6 @@ def test_demo_topics_are_deterministic(demo_topics):
     again = find_survey_topics(survey, ["low_point"])
     for name in ("terms", "summary", "answers", "k_selection"):
         pd.testing.assert_frame_equal(getattr(topics, name), getattr(again, name))
-
 
 
 def test_generic_evaluative_words_are_proposed_for_no_theme():

@@ -447,9 +447,14 @@ def survey_text(survey: CodedSurvey, *, exclude_groups: bool = False):
 
 def find_survey_topics(survey: CodedSurvey, questions: list[str] | None = None, *, scope: str = "unexplained",
                        theme: str | None = None, exclude=None, **model_options):
-    """Topics of a coded survey (:func:`textkit.discover.topic_tables.find_topics`), seeded by its config."""
-    from .discover.topic_tables import find_topics
+    """Topics of a coded survey (:func:`textkit.discover.topic_tables.find_topics`), seeded by its config.
 
+    ``exclude`` defaults to the answers coded "nothing to report" (when the coded table has that column).
+    """
+    from .discover.topic_tables import find_topics, nothing_to_report_rows
+
+    if exclude is None:
+        exclude = nothing_to_report_rows(survey.coded)
     model_options.setdefault("random_state", int(survey.config.seed or 0))
     model_options.setdefault("language", survey.lexicon.language)
     return find_topics(survey_text(survey), list(questions or survey.config.questions), scope=scope,

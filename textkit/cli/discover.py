@@ -290,7 +290,7 @@ def suggest_command(config: Path, out_dir: Path, questions: tuple[str, ...], by:
 
 @click.command("topics")
 @click.argument("config", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
+@click.option("--out", "out_dir", required=True, type=OUTPUT_FOLDER,
               help="Folder for topics.csv, topic_summary.csv, topic_answers.csv, k_selection.csv, "
                    "topic_examples.csv, topic-drafts.yaml and manifest.json.")
 @click.option("--question", "questions", multiple=True, metavar="NAME",
@@ -318,7 +318,7 @@ def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: 
     """
     import dataclasses
 
-    from ..discover.topic_tables import find_topics, render_topic_drafts
+    from ..discover.topic_tables import find_topics, nothing_to_report_rows, render_topic_drafts
     from ..io.output import csv_writer, text_writer, write_outputs
     from ..pipeline import survey_text
 
@@ -326,7 +326,8 @@ def topics_command(config: Path, out_dir: Path, questions: tuple[str, ...], by: 
     chosen = _questions(survey, questions)
     variables = _group_variables(survey, by)[0] if (by or survey.roles.get("groups")) else []
     data = dataclasses.replace(survey_text(survey), groups=survey.coded[variables] if variables else None)
-    result = find_topics(data, chosen, scope=scope, theme=theme, n_topics=k, k_range=tuple(k_range),
+    result = find_topics(data, chosen, scope=scope, theme=theme, exclude=nothing_to_report_rows(survey.coded),
+                         n_topics=k, k_range=tuple(k_range),
                          min_df=min_df, max_df=max_df, random_state=int(survey.config.seed or 0),
                          language=survey.lexicon.language)
     header = ["# DRAFT themes from textkit topics - review every line before use; nothing was added to",

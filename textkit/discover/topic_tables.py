@@ -12,8 +12,10 @@ Scopes (``scope=``)
 * ``"all"``: every answer, whole.
 * ``"theme"``: the answers coded with one theme (``theme=``), whole: sub-themes.
 
-Answers flagged by ``exclude`` (for instance "nothing to report" replies) are
-left out of every pool. Topics are fitted per question; their codes are
+Answers flagged by ``exclude`` are left out of every pool; the survey-level
+callers (:func:`textkit.pipeline.find_survey_topics`, ``textkit topics``) pass the
+answers coded "nothing to report" ("Nothing", "All good") by default: they are
+neither a theme nor a gap in the lexicon. Topics are fitted per question; their codes are
 numbered across questions (``topic_01`` ...), each topic belonging to one
 question (its code is 0 on the other questions' rows).
 """
@@ -38,7 +40,7 @@ TERM_COLUMNS = ["question", "scope", "topic", "label", "rank", "term", "weight"]
 SUMMARY_COLUMNS = ["question", "scope", "topic", "label", "n_answers", "weighted_share", "coherence",
                    "stability", "top_theme", "top_theme_overlap", "top_group_var", "top_group", "top_group_z"]
 ANSWER_COLUMNS = ["response_id", "question", "topic", "loading"]
-K_SELECTION_COLUMNS = ["question", "scope", "k", "stability", "coherence", "chosen"]
+K_SELECTION_COLUMNS = ["question", "scope", "k", "stability", "stability_se", "coherence", "chosen"]
 EXAMPLE_COLUMNS = ["question", "topic", "rank", "response_id", "loading", "text"]
 #: Terms in a topic's short label, and characters kept of an example answer.
 LABEL_TERMS = 3
@@ -108,7 +110,9 @@ def find_topics(data: SurveyText, questions: Sequence[str], *, scope: str = "une
     n_rows = len(data.questions)
     parts: dict[str, list] = {"terms": [], "summary": [], "answers": [], "k": [], "examples": []}
     columns, ids, owners, labels, models = [], [], [], [], {}
-    counts = {"answers": 0, "empty": 0}
+    counts = {"answers": 0, "empty": 0,
+              "excluded": int((np.asarray(data.answered, bool) & np.asarray(exclude, bool)).sum())
+              if exclude is not None else 0}
     for question in questions:
         rows = np.flatnonzero(usable & (np.asarray(data.questions) == question))
         where = f"{question} ({scope if scope != 'theme' else 'theme ' + str(theme)})"
@@ -141,6 +145,16 @@ def find_topics(data: SurveyText, questions: Sequence[str], *, scope: str = "une
         answers=_concat(parts["answers"], ANSWER_COLUMNS), k_selection=_concat(parts["k"], K_SELECTION_COLUMNS),
         examples=_concat(parts["examples"], EXAMPLE_COLUMNS), codes=code_matrix, topic_ids=ids,
         topic_questions=owners, labels=labels, models=models, scope=scope, counts=counts)
+
+
+def nothing_to_report_rows(coded: pd.DataFrame) -> np.ndarray | None:
+    """The ``exclude`` mask topics use by default: rows coded "nothing to report", shape (n_rows,), bool.
+
+    None when the coded table has no ``nothing_to_report`` column.
+    """
+    if "nothing_to_report" not in coded.columns:
+        return None
+    return pd.to_numeric(coded["nothing_to_report"], errors="coerce").fillna(0).to_numpy() != 0
 
 
 def _concat(frames: list[pd.DataFrame], columns: list[str]) -> pd.DataFrame:

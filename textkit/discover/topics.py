@@ -44,16 +44,27 @@ two models are matched by the Hungarian method
 (``scipy.optimize.linear_sum_assignment``) on the average Jaccard of the top-d
 lists over depths d = 1..t, and the agreement is the mean over matched
 topics. Stability is the mean agreement of the subsample models with the
-reference; the chosen k has the highest stability (ties: the smaller k).
-NPMI coherence (Bouma 2009; mean over pairs of top terms, Lau, Newman &
-Baldwin 2014) on the pool's answers is reported beside it. The scan runs on at
-most ``scan_size`` (20,000) distinct answers drawn at random; the final model
-is fitted on all of them.
+reference, with its standard error over the runs. NPMI coherence (Bouma 2009;
+mean over pairs of top terms, Lau, Newman & Baldwin 2014) on the pool's
+answers is computed beside it. The chosen k (:func:`choose_k`) has the peak
+stability, except that among the k within one standard error of the peak
+(near-ties the criterion cannot tell apart) the most coherent one wins.
+
+The scan is cheap by design: it uses at most ``scan_size`` (5,000) distinct
+answers drawn at random, keeps the terms that pass ``min_df`` in them, and fits
+with ``scan_max_iter`` (200) and ``scan_tol`` (1e-4, scikit-learn's default)
+instead of the final fit's 500 and 1e-5. Its fits start from NNDSVDa like the
+final fit, not from the reference model's topics: a warm start would make the
+subsample models resemble the reference by construction and inflate the
+stability. The final model is fitted on every distinct answer. On the planted
+tests, the demo and the benchmark the cheap scan picks the same k as the slow
+one (up to 20,000 answers, 500 iterations, tolerance 1e-5):
+``tests/test_topics.py`` (slow set) and ``benchmarks/topics.py --compare-slow``.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -71,7 +82,7 @@ DEFAULT_K_RANGE = (3, 15)
 ANSWERS_PER_TOPIC = 5
 TERMS_PER_TOPIC = 3
 #: Columns of the k scan (``k_selection.csv`` without question and scope).
-K_COLUMNS = ["k", "stability", "coherence", "chosen"]
+K_COLUMNS = ["k", "stability", "stability_se", "coherence", "chosen"]
 
 
 # --------------------------------------------------------------------------- measures
@@ -143,6 +154,28 @@ def match_topics(first: Sequence[Sequence], second: Sequence[Sequence]) -> tuple
     scores = np.array([[average_jaccard(a, b) for b in second] for a in first])
     rows, cols = linear_sum_assignment(scores, maximize=True)
     return cols[np.argsort(rows)], scores[rows, cols][np.argsort(rows)]
+
+
+def choose_k(table: pd.DataFrame) -> int:
+    """The k a stability scan picks: peak stability, NPMI coherence among the near-ties.
+
+    ``table`` has one row per k with ``stability`` (mean agreement over the
+    subsample runs), ``stability_se`` (its standard error over the runs) and
+    ``coherence`` (mean NPMI). Greene et al. (2014) pick the k of peak
+    stability. A k whose stability lies within one standard error of the peak
+    is not told apart from the peak by that criterion (on real pools the curve
+    often has a plateau, and which k of it comes out highest depends on the
+    subsamples drawn); among those k we take the most coherent one, NPMI being
+    the other published measure of topic quality (Lau, Newman & Baldwin 2014).
+    Remaining ties go to the smaller k.
+    """
+    stability = table["stability"].to_numpy(dtype=float)
+    peak = int(np.argmax(stability))
+    tolerance = float(table["stability_se"].to_numpy(dtype=float)[peak]) + 1e-12
+    near = np.flatnonzero(stability >= stability[peak] - tolerance)
+    coherence = table["coherence"].to_numpy(dtype=float)[near]
+    best = near[coherence >= coherence.max() - 1e-12]
+    return int(table["k"].to_numpy()[best].min())
 
 
 # --------------------------------------------------------------------------- streams
@@ -286,6 +319,10 @@ def _distinct_rows(matrix: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
 
 # --------------------------------------------------------------------------- model
 
+def _no_progress(step: str) -> None:
+    """The default progress hook: report nothing."""
+
+
 @dataclass(frozen=True)
 class _Scan:
     table: pd.DataFrame
@@ -316,7 +353,10 @@ class TopicModel(TransformerMixin, BaseEstimator):
         Depth t of the stability and coherence measures.
     stability_runs : int, default 5
     subsample : float, default 0.8
-    scan_size : int, default 20000
+    scan_size : int, default 5000
+        Most distinct answers the k scan uses (drawn at random).
+    scan_max_iter, scan_tol : int, float, default 200, 1e-4
+        NMF iteration cap and tolerance of the scan's fits.
     loading_threshold : float, default 0.5
         Share of an answer's largest loading a topic needs to be coded.
     language : str or None, default "en"
@@ -325,6 +365,7 @@ class TopicModel(TransformerMixin, BaseEstimator):
     random_state : int, default 0
     max_iter : int, default 500
     tol : float, default 1e-5
+        NMF iteration cap and tolerance of the final fit.
 
     Attributes
     ----------
@@ -355,9 +396,9 @@ class TopicModel(TransformerMixin, BaseEstimator):
     def __init__(self, n_topics: int | None = None, *, k_range: tuple[int, int] = DEFAULT_K_RANGE,
                  min_df: int = 5, max_df: float = 0.2, ngram_range: tuple[int, int] = (1, 2),
                  stop_words=None, collapse_duplicates: bool = True, n_top_terms: int = 10,
-                 stability_runs: int = 5, subsample: float = 0.8, scan_size: int = 20000,
-                 loading_threshold: float = 0.5, language: str | None = "en", random_state: int = 0,
-                 max_iter: int = 500,
+                 stability_runs: int = 5, subsample: float = 0.8, scan_size: int = 5000,
+                 scan_max_iter: int = 200, scan_tol: float = 1e-4, loading_threshold: float = 0.5,
+                 language: str | None = "en", random_state: int = 0, max_iter: int = 500,
                  tol: float = 1e-5) -> None:
         self.n_topics = n_topics
         self.k_range = k_range
@@ -370,6 +411,8 @@ class TopicModel(TransformerMixin, BaseEstimator):
         self.stability_runs = stability_runs
         self.subsample = subsample
         self.scan_size = scan_size
+        self.scan_max_iter = scan_max_iter
+        self.scan_tol = scan_tol
         self.loading_threshold = loading_threshold
         self.language = language
         self.random_state = random_state
@@ -377,7 +420,8 @@ class TopicModel(TransformerMixin, BaseEstimator):
         self.tol = tol
 
     # ------------------------------------------------------------------ fit
-    def fit(self, X, y=None, *, where: str = "the answers") -> TopicModel:
+    def fit(self, X, y=None, *, where: str = "the answers",
+            progress: Callable[[str], None] | None = None) -> TopicModel:
         """Learn the vocabulary, the IDF, k (unless given) and the topics.
 
         Parameters
@@ -385,13 +429,35 @@ class TopicModel(TransformerMixin, BaseEstimator):
         X : sequence of str (None for blank) or TokenStream, n_answers documents
         where : str
             Names the pool in error messages ("low_point (unexplained)").
+        progress : callable, optional
+            Called with the name of each step as it starts ("terms", "k scan: k=3"
+            ..., "final fit"); a benchmark or a progress bar hooks in here.
 
         Raises
         ------
         AnalysisError
             Too few answers or terms for the requested k, or invalid settings.
         """
+        import warnings
+
+        from sklearn.exceptions import ConvergenceWarning
+
         self._check_settings()
+        self._progress = progress or _no_progress  # dropped below: the fitted model stays picklable
+        try:
+            self._progress("terms")
+            tfidf, binary = self._prepare(X)
+            self._check_capacity(where)
+            with warnings.catch_warnings():  # max_iter caps a slow fit; the loadings are still usable
+                warnings.simplefilter("ignore", ConvergenceWarning)
+                self._fit_topics(tfidf, binary)
+        finally:
+            del self._progress
+        self.coherence_ = topic_coherence(binary, self.top_term_indices())
+        return self
+
+    def _prepare(self, X) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+        """Learn the vocabulary and the IDF; (TF-IDF, term presence) of the distinct answers fitted."""
         stream = _as_stream(X)
         self.forms_ = {}
         if self.language:
@@ -409,18 +475,7 @@ class TopicModel(TransformerMixin, BaseEstimator):
         self.n_distinct_ = distinct.shape[0]
         self.idf_ = np.log((1 + distinct.shape[0]) / (1 + np.bincount(distinct.indices,
                                                                      minlength=distinct.shape[1]))) + 1
-        self._check_capacity(where)  # before any arithmetic: an empty pool gets the one-line reason
-        tfidf = self._tfidf(distinct)
-        binary = (distinct > 0).astype(np.float64)
-        import warnings
-
-        from sklearn.exceptions import ConvergenceWarning
-
-        with warnings.catch_warnings():  # max_iter caps a slow fit; the loadings are still usable
-            warnings.simplefilter("ignore", ConvergenceWarning)
-            self._fit_topics(tfidf, binary)
-        self.coherence_ = topic_coherence(binary, self.top_term_indices())
-        return self
+        return self._tfidf(distinct), (distinct > 0).astype(np.float64)
 
     def _fit_topics(self, tfidf: sp.csr_matrix, binary: sp.csr_matrix) -> None:
         scan = self._scan(tfidf, binary) if self.n_topics is None else None
@@ -429,6 +484,7 @@ class TopicModel(TransformerMixin, BaseEstimator):
             self.stability_ = float(scan.table.loc[scan.table["chosen"], "stability"].iloc[0])
         else:
             self.k_selection_, self.n_topics_, self.stability_ = None, int(self.n_topics), None
+        self._progress("final fit")
         model = self._nmf(self.n_topics_, self.random_state)
         self.fit_loadings_ = model.fit_transform(tfidf)
         self.components_ = model.components_
@@ -472,6 +528,8 @@ class TopicModel(TransformerMixin, BaseEstimator):
         """Sublinear TF x IDF, rows scaled to unit length (scikit-learn's TfidfTransformer formulas)."""
         from sklearn.preprocessing import normalize
 
+        if 0 in counts.shape:  # no answer or no term left: the capacity check says so
+            return sp.csr_matrix(counts.shape, dtype=np.float64)
         tf = counts.astype(np.float64, copy=True)
         tf.data = 1.0 + np.log(tf.data)
         return normalize(tf @ sp.diags(self.idf_), norm="l2", copy=False).tocsr()
@@ -512,28 +570,41 @@ class TopicModel(TransformerMixin, BaseEstimator):
         n = tfidf.shape[0]
         scan_rows = np.sort(rng.choice(n, self.scan_size, replace=False)) if n > self.scan_size else np.arange(n)
         scan_tfidf = tfidf[scan_rows]
+        # A scan set drawn from a larger pool keeps the terms that pass min_df in it (the pool's own
+        # rule); a pool within scan_size keeps every term.
+        high = min(int(self.k_range[1]), self.max_supported_k())
+        frequency = np.bincount(scan_tfidf.indices, minlength=tfidf.shape[1])
+        present = np.flatnonzero(frequency >= (self.min_df if n > self.scan_size else 1))
+        if len(present) < TERMS_PER_TOPIC * high:  # too few for the largest k: keep every term seen
+            present = np.flatnonzero(frequency > 0)
+        scan_tfidf = scan_tfidf[:, present]
         size = max(int(round(self.subsample * len(scan_rows))), 1)
         samples = [np.sort(rng.choice(len(scan_rows), size, replace=False)) for _ in range(self.stability_runs)]
-        high = min(int(self.k_range[1]), self.max_supported_k())
         rows = []
         per_topic: dict[int, tuple[list[list[int]], np.ndarray]] = {}
         for k in range(int(self.k_range[0]), high + 1):
-            reference = self._nmf(k, self.random_state).fit(scan_tfidf).components_
-            reference_lists = self._top_lists(reference)
+            self._progress(f"k scan: k={k}")
+            reference_lists = self._scan_lists(scan_tfidf, k, self.random_state)
             scores = np.array([match_topics(reference_lists,
-                                            self._top_lists(self._nmf(k, self.random_state + run + 1)
-                                                            .fit(scan_tfidf[sample]).components_))[1]
+                                            self._scan_lists(scan_tfidf[sample], k, self.random_state + run + 1))[1]
                                for run, sample in enumerate(samples)]).reshape(len(samples), k)
+            reference_lists = [present[row].tolist() for row in reference_lists]
             per_topic[k] = (reference_lists, scores.mean(axis=0) if len(samples) else np.ones(k))
-            coherence = topic_coherence(binary, np.asarray(reference_lists)).mean()
-            rows.append({"k": k, "stability": float(scores.mean()) if len(samples) else 1.0,
-                         "coherence": float(coherence)})
+            run_means = scores.mean(axis=1)
+            rows.append({"k": k, "stability": float(run_means.mean()) if len(samples) else 1.0,
+                         "stability_se": float(run_means.std(ddof=1) / np.sqrt(len(samples)))
+                         if len(samples) > 1 else 0.0,
+                         "coherence": float(topic_coherence(binary, np.asarray(reference_lists)).mean())})
         table = pd.DataFrame(rows)
-        best = float(table["stability"].max())
-        chosen = int(table.loc[table["stability"] >= best - 1e-12, "k"].min())
+        chosen = choose_k(table)
         table["chosen"] = table["k"] == chosen
         return _Scan(table=table[K_COLUMNS], chosen=chosen, reference=per_topic[chosen][0],
                      per_topic=per_topic[chosen][1])
+
+    def _scan_lists(self, tfidf: sp.csr_matrix, k: int, seed: int) -> list[list[int]]:
+        """Top-term lists of one scan model (looser ``scan_max_iter``/``scan_tol`` than the final fit)."""
+        model = self._nmf(k, seed).set_params(max_iter=self.scan_max_iter, tol=self.scan_tol)
+        return self._top_lists(model.fit(tfidf).components_)
 
     # ------------------------------------------------------------------ use
     def _check_fitted(self) -> None:
