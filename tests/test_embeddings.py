@@ -102,12 +102,16 @@ def test_embeddings_are_deterministic_unit_length_and_shaped(demo_hand, embedded
 
     _, texts, _ = demo_hand
     assert embedded.shape == (len(texts), EMBEDDING_DIMENSION) == (len(texts), 384) and embedded.dtype == np.float32
-    again = embed_texts(texts)
-    assert again.tobytes() == embedded.tobytes()  # same answers, same bytes
-    order = np.random.default_rng(3).permutation(len(texts))
-    shuffled = embed_texts([texts[i] for i in order])
-    assert shuffled.tobytes() == embedded[order].tobytes()  # the order of the answers changes nothing
-    assert np.allclose(np.linalg.norm(embedded, axis=1), 1.0, atol=1e-5)
+    answered = np.array([bool(t and t.strip()) for t in texts])
+    assert np.allclose(np.linalg.norm(embedded[answered], axis=1), 1.0, atol=1e-5)
+    assert (~answered).any() and not embedded[~answered].any()  # blank answers: zero rows
+    sample = texts[:120]
+    first = embed_texts(sample)
+    assert embed_texts(sample).tobytes() == first.tobytes()  # same answers, same bytes
+    order = np.random.default_rng(3).permutation(len(sample))
+    assert embed_texts([sample[i] for i in order]).tobytes() == first[order].tobytes()  # their order changes nothing
+    # another corpus around the same answers moves a value by float32 rounding at most (the batches differ)
+    assert np.abs(first - embedded[:120]).max() < 1e-5
     blank = embed_texts([None, "   ", "the ferry was late"])
     assert not blank[:2].any() and np.linalg.norm(blank[2]) == pytest.approx(1.0, abs=1e-5)
 
