@@ -19,46 +19,23 @@ import pandas as pd
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "benchmarks"))
 
-from textkit.coding.coder import ThemeCoder  # noqa: E402
-from textkit.coding.handcodes import long_hand_codes  # noqa: E402
-from textkit.coding.learned import LearnedCoder  # noqa: E402
-from textkit.coding.lexicon import load_lexicon  # noqa: E402
+from learned_table import FIRST, LEXICON, SECOND, cross_validated  # noqa: E402
 
-SEED = 20261202  # the demo config's seed
-LEXICON = load_lexicon(ROOT / "lexicons" / "visitor_experience.yaml")
-SAMPLES = {"1st": ROOT / "demo_comments" / "hand_coded.csv", "2nd": ROOT / "demo_comments" / "hand_coded_second.csv"}
+SAMPLES = {"1st": FIRST, "2nd": SECOND}
 FEATURE_SETS = ("tfidf", "tfidf+embeddings")
 
 
-def load(path: Path) -> tuple[list, np.ndarray]:
-    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
-    hand = long_hand_codes(frame, LEXICON, str(path))
-    return [t or None for t in hand.texts], hand.values[:, : len(LEXICON.ids)]
-
-
-def micro_f1(truth: np.ndarray, codes: np.ndarray) -> float:
-    tp = (truth & codes).sum()
-    return 2 * tp / (2 * tp + (truth != codes).sum())
-
-
-def cross_validated(path: Path, feature_set: str) -> tuple[pd.DataFrame, float, float, float]:
+def timed(path: Path, feature_set: str) -> tuple[pd.DataFrame, float, float, float]:
     """(report, micro F1 of learned, micro F1 of combined, seconds to fit) for one sample and feature set."""
-    texts, values = load(path)
     started = time.perf_counter()
-    coder = LearnedCoder(LEXICON, feature_set=feature_set, random_state=SEED).fit(texts, values)
-    seconds = time.perf_counter() - started
-    lexicon = ThemeCoder(LEXICON).fit(texts).transform(texts).toarray().astype(bool)
-    truth = values == 1
-    model = np.where(np.isnan(coder.cv_codes_), lexicon, coder.cv_codes_ == 1)
-    union = model | lexicon
-    combined = np.column_stack([{"lexicon": lexicon, "model": model, "union": union}[choice][:, i]
-                                for i, choice in enumerate(coder.combined_)])
-    return coder.report_.set_index("theme"), micro_f1(truth, model), micro_f1(truth, combined), seconds
+    report, (_, learned, combined) = cross_validated(path, feature_set)
+    return report, learned, combined, time.perf_counter() - started
 
 
 def accuracy_table() -> None:
-    results = {(name, fs): cross_validated(path, fs) for name, path in SAMPLES.items() for fs in FEATURE_SETS}
+    results = {(name, fs): timed(path, fs) for name, path in SAMPLES.items() for fs in FEATURE_SETS}
     header = ["theme"] + [f"{name}: {label}" for name in SAMPLES
                           for label in ("hand", "TF-IDF", "+ embeddings")]
     print("| " + " | ".join(header) + " |")
@@ -81,7 +58,8 @@ def accuracy_table() -> None:
             cells += ["", *(f"{results[(name, fs)][index]:.3f}" for fs in FEATURE_SETS)]
         print("| " + " | ".join(cells) + " |")
     for name in SAMPLES:
-        print(f"fit on the {name} sample: " + ", ".join(f"{fs} {results[(name, fs)][3]:.1f} s" for fs in FEATURE_SETS))
+        seconds = ", ".join(f"{fs} {results[(name, fs)][3]:.1f} s" for fs in FEATURE_SETS)
+        print(f"fit (and score) on the {name} sample: {seconds}")
 
 
 def embedding_speed(n_answers: int = 10_000) -> None:
