@@ -38,10 +38,10 @@ def f1(truth: np.ndarray, codes: np.ndarray) -> float:
     return 2 * tp / (2 * tp + (truth != codes).sum()) if (truth | codes).any() else float("nan")
 
 
-def cross_validated(path: Path) -> tuple[pd.DataFrame, list[float]]:
+def cross_validated(path: Path, feature_set: str = "tfidf") -> tuple[pd.DataFrame, list[float]]:
     """Per-theme report and the micro F1 (all decisions) of lexicon, learned and combined."""
     texts, values = load(path)
-    coder = LearnedCoder(LEXICON, random_state=SEED).fit(texts, values)
+    coder = LearnedCoder(LEXICON, feature_set=feature_set, random_state=SEED).fit(texts, values)
     lexicon = ThemeCoder(LEXICON).fit(texts).transform(texts).toarray().astype(bool)
     truth = values == 1
     model = np.where(np.isnan(coder.cv_codes_), lexicon, coder.cv_codes_ == 1)

@@ -77,6 +77,10 @@ class AnalysisError(TextkitError):
     """An analysis request does not fit the data (unknown group, empty group...)."""
 
 
+class MissingExtraError(TextkitError):
+    """An option needs an optional extra that is not installed (the message names the install command)."""
+
+
 #: Most problems one run lists before it stops (the rest are counted).
 MAX_PROBLEMS = 20
 

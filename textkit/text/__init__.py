@@ -2,7 +2,8 @@
 
 Takes answer strings; gives a :class:`TokenStream` (integer codes, the sorted
 vocabulary, per-document offsets and character spans), sparse document-term
-matrices of 1-3 word phrases, and redacted copies of text for display.
+matrices of 1-3 word phrases, redacted copies of text for display, and (with the
+optional ``semantic`` extra) sentence embeddings.
 Imports only :mod:`textkit.errors`.
 """
 
@@ -11,5 +12,5 @@ from .._lazy import lazy_exports
 __getattr__, __dir__ = lazy_exports(__name__, {
     "normalise": "tokens", "tokenize": "tokens", "tokenize_corpus": "tokens", "TokenStream": "tokens",
     "default_stop_words": "tokens", "redact": "redact", "redact_all": "redact",
-    "document_term_matrix": "ngrams",
+    "document_term_matrix": "ngrams", "embed_texts": "embeddings",
 })
