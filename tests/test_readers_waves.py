@@ -186,3 +186,30 @@ def test_cli_codes_and_estimates_a_survey_given_as_wave_files(tmp_path, capsys):
 
     table = pd.read_csv(tmp_path / "stats" / "prevalence.csv", encoding="utf-8-sig", dtype={"wave": str})
     assert set(table.wave) == {"2025", "2026", "(all)"}
+
+
+def test_max_answer_chars_in_the_config_cuts_long_answers_and_counts_the_rest(tmp_path):
+    # The cap is the config's; the note counts what was left out (issue: nothing silently dropped).
+    from textkit.io.config import load_config
+    from textkit.io.readers import read_survey
+
+    (tmp_path / "s.csv").write_text("id,answer\n1," + "queue " * 100 + "\n2,short\n", encoding="utf-8")
+    (tmp_path / "s.yaml").write_text("survey: s.csv\nid: id\nquestions: {q: answer}\nmax_answer_chars: 120\n",
+                                     encoding="utf-8")
+    data = read_survey(load_config(tmp_path / "s.yaml"))
+    assert len(data.frame["answer"].iloc[0]) == 120
+    assert data.frame["answer"].iloc[1] == "short"
+    assert any("480 characters left out" in note for note in data.notes)
+
+
+def test_max_answer_chars_below_100_is_refused_with_its_line(tmp_path):
+    import pytest
+
+    from textkit.errors import InputError
+    from textkit.io.config import load_config
+
+    (tmp_path / "s.yaml").write_text("survey: s.csv\nid: id\nquestions: {q: answer}\nmax_answer_chars: 5\n",
+                                     encoding="utf-8")
+    (tmp_path / "s.csv").write_text("id,answer\n1,a\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"s.yaml:4.*max_answer_chars"):
+        load_config(tmp_path / "s.yaml")

@@ -77,7 +77,7 @@ DEFAULT_NON_ANSWERS: tuple[str, ...] = (
 _TOP_KEYS: tuple[str, ...] = (
     "survey", "sheet", "table", "query", "encoding", "delimiter", "id", "questions",
     "weight", "design", "wave", "groups", "lexicon", "seed", "non_answers", "nets",
-    "corrections", "redact_names",
+    "corrections", "redact_names", "max_answer_chars",
 )
 #: Former names of keys -> their names now (refused with a hint).
 _RENAMED_KEYS = {"single_psu": "one_cluster_stratum (values refuse, centre, merge)",
@@ -181,6 +181,7 @@ class SurveyConfig:
     seed: int = 0
     non_answers: tuple[str, ...] = field(default=DEFAULT_NON_ANSWERS)
     redact_names: tuple[str, ...] = ()
+    max_answer_chars: int | None = None
     nets: dict[str, tuple[str, ...]] = field(default_factory=dict)
     question_text: dict[str, str] = field(default_factory=dict)
     corrections: Path | None = None
@@ -376,6 +377,7 @@ class _Validator:
         out["groups"] = self.groups(entries.get("groups", _NULL))
         out["lexicon"] = self.path(entries.get("lexicon", _NULL), "lexicon", optional=True)
         out["seed"] = self.seed(entries.get("seed", _NULL))
+        out["max_answer_chars"] = self.answer_cap(entries.get("max_answer_chars", _NULL))
         out["non_answers"] = self.non_answers(entries.get("non_answers"))
         names = entries.get("redact_names")
         out["redact_names"] = tuple(n.strip() for n in self.non_answers(names) if n.strip()) if names else ()
@@ -601,6 +603,16 @@ class _Validator:
         if item.kind != "scalar" or isinstance(item.value, bool) or not isinstance(item.value, int) \
                 or item.value < 0:
             raise self.fail(f"'seed' must be a whole number 0 or more, found {_describe(item)}", item.line)
+        return int(item.value)
+
+    def answer_cap(self, item: _Item) -> int | None:
+        """``max_answer_chars``: the longest answer kept whole (the rest is cut and counted)."""
+        if item.kind == "null":
+            return None
+        if item.kind != "scalar" or isinstance(item.value, bool) or not isinstance(item.value, int) \
+                or item.value < 100:
+            raise self.fail(f"'max_answer_chars' must be a whole number of 100 or more, found {_describe(item)}",
+                            item.line)
         return int(item.value)
 
     def non_answers(self, item: _Item | None) -> tuple[str, ...]:
