@@ -126,6 +126,7 @@ COLUMN_NOTES: dict[str, str] = {
     "n_answers": "Answers of the pool coded with the topic (its loading at least half the answer's largest).",
     "coherence": "NPMI coherence of the topic's top terms (Bouma 2009; -1 to 1, higher: terms occur together).",
     "stability": "Agreement of the top terms across refits on subsamples (average Jaccard, 0-1; Greene et al. 2014).",
+    "stability_se": "Standard error of the stability over the subsample refits (k within one SE of the peak ties).",
     "top_theme": "Lexicon theme whose answers overlap the topic most.",
     "top_theme_overlap": "Share of the topic's answers also coded with that theme.",
     "top_group_var": "Group variable of the group most over-represented in the topic.",
