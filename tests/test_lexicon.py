@@ -509,3 +509,11 @@ def test_starter_sample_terms(starter):
     assert {("queu*",), ("que",), ("qeue",)} <= queues
     parking = starter.theme("parking")
     assert not any(term.inflect for term in parking.terms)  # "parking" stems to "park" (Snowball)
+
+
+def test_a_term_with_a_lone_surrogate_is_refused_with_its_line():
+    # A YAML "\ud800" escape decodes to a lone surrogate: no answer can hold it, and writers
+    # cannot encode it, so the parser refuses it (a traceback in the coder before).
+    text = 'lexicon: x\nversion: "1"\nlanguage: en\nthemes:\n  - id: a\n    label: A\n    terms: ["\\ud800abc"]\n'
+    with pytest.raises(LexiconError, match=r":7: .*lone surrogate"):
+        parse_lexicon(text, source="lex.yaml")

@@ -715,6 +715,9 @@ class _Parser:
                              f"circular parents: {cycle}; a theme cannot be its own ancestor")
 
 
+_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
 def term_words(text: str) -> tuple[tuple[str, ...], str | None]:
     """Split a term into normalised words, checking wildcards.
 
@@ -731,6 +734,8 @@ def term_words(text: str) -> tuple[tuple[str, ...], str | None]:
     message : str or None
         Why the term is malformed, or None.
     """
+    if _SURROGATE.search(text):
+        return (), "it holds a lone surrogate character (a broken \\u escape), which no answer can contain"
     words: list[str] = []
     for piece in normalise(text).split():
         stars = piece.count("*")
