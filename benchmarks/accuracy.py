@@ -61,7 +61,8 @@ def score(frame: pd.DataFrame, lexicon: Lexicon) -> dict[str, float]:
     hand = codes_to_matrix(codes, themes, lexicon=lexicon)
     machine = np.zeros_like(hand)
     machine[:, :len(lexicon.ids)] = ThemeCoder(lexicon).fit(texts).transform(texts).toarray()
-    total = agreement_table(hand, machine, themes).iloc[-1]
+    table = agreement_table(hand, machine, themes)
+    total = table.loc[table["theme"] == "(micro)"].iloc[0]
     return {"precision": total.precision, "recall": total.recall, "f1": total.f1}
 
 
