@@ -1,4 +1,4 @@
-"""Command line for coding: ``textkit code``, ``textkit lexicon check``, ``textkit agreement``.
+"""Command line for coding: ``textkit code``, ``textkit lexicon check``/``forms``, ``textkit agreement``.
 
 Only click is imported here; the coding modules load inside the commands.
 """
@@ -133,6 +133,73 @@ def lexicon_check_command(lexicon: Path, config: Path | None, out_dir: Path | No
     else:
         click.echo("add --out DIR to write every term's hits, answers and example matches to a table")
     click.echo(format_lint(lint))
+
+
+@lexicon_group.command("forms")
+@click.argument("lexicon", type=click.Path(path_type=Path))
+@click.option("--survey", "config", type=click.Path(path_type=Path), default=None,
+              help="List the forms that occur in this survey's answers instead of the dictionary's "
+                   "(needed for languages other than English and for 'inflect: stem' terms).")
+@click.option("--out", "out_path", type=click.Path(path_type=Path), default=None,
+              help="Write the table (theme, term, line, exclusion, word, form) to this .csv file.")
+@click.option("--quiet", is_flag=True, help="No progress bar and no listing.")
+def lexicon_forms_command(lexicon: Path, config: Path | None, out_path: Path | None, quiet: bool) -> None:
+    """List the other word forms each term of LEXICON matches through inflection.
+
+    Read it term by term: a form whose sense lies outside the theme ("parks" under a
+    parking theme) is a reason to write the term as {term: X, inflect: false}.
+    """
+    from ..coding.forms import inflected_forms
+    from ..coding.lexicon import load_lexicon
+    from ..errors import InputError
+    from ..text.inflect import base_language
+
+    if out_path is not None and out_path.suffix.lower() != ".csv":
+        raise InputError("the forms table is written as CSV; give a file name ending in .csv", source=out_path)
+    lex = load_lexicon(lexicon)
+    inputs = [lexicon, config]
+    vocabulary = None
+    if config is not None:
+        from ..pipeline import code_survey
+
+        with steps(5, quiet) as progress:
+            survey = code_survey(config, lexicon=lex, progress=progress, apply_corrections=False,
+                                 missing_design="drop")
+        vocabulary = survey.stream.vocabulary.tolist()
+        inputs += survey.input_paths
+    table = inflected_forms(lex, vocabulary)
+    if out_path is not None:
+        from ..io.output import csv_writer
+        from ..io.workbook import write_file
+
+        write_file(out_path, csv_writer(table), inputs=inputs)
+    for note in _forms_notes(lex, config is not None, base_language(lex.language)):
+        click.echo(f"note: {note}", err=True)
+    if quiet:
+        return
+    if out_path is None:
+        for (theme, term, exclusion), rows in table.groupby(["theme", "term", "exclusion"], sort=False):
+            listed = "; ".join(f"{word}: {', '.join(group['form'])}"
+                               for word, group in rows.groupby("word", sort=False))
+            mark = " (exclusion)" if exclusion else ""
+            click.echo(f"{theme} / {term}{mark} [line {rows['line'].iloc[0]}]: {listed}")
+    where = f"in {config}" if config is not None else "in the dictionary"
+    terms = table[["theme", "term", "exclusion"]].drop_duplicates()
+    click.echo(f"{len(table):,} forms {where} for {len(terms):,} terms of '{lex.name}'"
+               + (f"; wrote {out_path}" if out_path is not None else ""))
+
+
+def _forms_notes(lex, from_survey: bool, language: str) -> list[str]:
+    """What the forms listing leaves out, one note a reason."""
+    notes = []
+    if not from_survey and language != "en":
+        notes.append(f"forms of '{language}' words cannot be generated from the dictionary; "
+                     "add --survey CONFIG to list those in its answers")
+    n_stem = sum(term.inflect == "stem" for theme in lex.themes for term in (*theme.terms, *theme.exclusions))
+    if n_stem and not from_survey:
+        notes.append(f"{n_stem} 'inflect: stem' terms are not listed (a stem also matches derived words); "
+                     "add --survey CONFIG to list the forms in its answers")
+    return notes
 
 
 @click.command("agreement")

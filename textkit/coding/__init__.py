@@ -3,7 +3,8 @@
 Takes a lexicon file and a :class:`~textkit.text.TokenStream`; gives a parsed
 :class:`Lexicon` (every problem with its line), a lint table, the sparse
 ``(n_answers, n_themes)`` 0/1 theme matrix with its evidence, and precision,
-recall, F1 and kappa against hand codes. Imports :mod:`textkit.text` and
+recall, F1 and kappa against hand codes; and the word forms each term matches
+through inflection. Imports :mod:`textkit.text` and
 :mod:`textkit.errors`.
 """
 
@@ -11,7 +12,7 @@ from .._lazy import lazy_exports
 
 __getattr__, __dir__ = lazy_exports(__name__, {
     "Lexicon": "lexicon", "Theme": "lexicon", "Term": "lexicon", "load_lexicon": "lexicon",
-    "parse_lexicon": "lexicon", "lint_lexicon": "lint", "format_lint": "lint",
+    "parse_lexicon": "lexicon", "lint_lexicon": "lint", "format_lint": "lint", "inflected_forms": "forms",
     "ThemeCoder": "coder", "CodingResult": "coder",
     "compare_with_hand_codes": "agreement", "agreement_table": "agreement",
     "evaluate_hand_codes": "agreement", "krippendorff_alpha_nominal": "agreement",
