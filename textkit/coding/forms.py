@@ -69,8 +69,9 @@ def inflected_forms(lexicon: Lexicon, vocabulary: Iterable[str] | None = None, *
     pandas.DataFrame
         One row per (term word, form): ``theme`` (id), ``term`` (as written),
         ``line`` (of the term in the lexicon file), ``exclusion`` (bool),
-        ``word`` (the term word, normalised) and ``form`` (a lower-case form,
-        never the word itself once case and accents are folded). Rows follow the
+        ``word`` (the term word, normalised) and ``form`` (a case-folded
+        form with its accents, never the word itself as the lexicon's accent
+        setting compares them). Rows follow the
         lexicon's order of themes, terms (then exclusions) and words; forms are
         sorted. A term word with no other form has no row.
     """
@@ -79,7 +80,7 @@ def inflected_forms(lexicon: Lexicon, vocabulary: Iterable[str] | None = None, *
     if vocabulary is None and base_language(language) != "en":
         return _form_table(rows)  # simplemma maps forms to lemmas but cannot generate forms
     key_of = {mode: key_function(mode, language, keep) for mode in (True, INFLECT_STEM)}
-    index = {mode: _key_index(vocabulary, key_of[mode], keep) for mode in key_of} if vocabulary is not None else None
+    index = {mode: _key_index(vocabulary, key_of[mode]) for mode in key_of} if vocabulary is not None else None
     for theme in lexicon.themes:
         listed = [(term, False) for term in theme.terms]
         listed += [(term, True) for term in theme.exclusions] if exclusions else []
@@ -110,12 +111,12 @@ def _inflecting_words(term: Term, from_vocabulary: bool) -> list[str]:
     return list(dict.fromkeys(word for word in term.words if not word.endswith("*")))
 
 
-def _key_index(vocabulary: Iterable[str], key: KeyFunction, keep_accents: bool) -> dict[str, list[str]]:
-    """Key -> the folded vocabulary words having it (each word once, sorted)."""
+def _key_index(vocabulary: Iterable[str], key: KeyFunction) -> dict[str, list[str]]:
+    """Key -> the case-folded vocabulary words having it (each word once, sorted)."""
     index: dict[str, set[str]] = {}
     for word in dict.fromkeys(vocabulary):
         if isinstance(word, str) and word.strip():
-            form = fold(word, keep_accents)
+            form = fold(word, keep_accents=True)  # listed with its accents, whatever the matching
             for word_key in key(word):
                 index.setdefault(word_key, set()).add(form)
     return {word_key: sorted(forms) for word_key, forms in index.items()}
@@ -125,8 +126,7 @@ def _forms_in_vocabulary(word: str, key: KeyFunction, index: dict[str, list[str]
     """The vocabulary words other than ``word`` that share a key with it, sorted."""
     itself = fold(word, keep_accents)
     found = {form for word_key in key(word) for form in index.get(word_key, ())}
-    found.discard(itself)
-    return sorted(found)
+    return sorted(form for form in found if fold(form, keep_accents) != itself)
 
 
 def _generated_forms(word: str, key: KeyFunction, keep_accents: bool) -> list[str]:
@@ -137,6 +137,5 @@ def _generated_forms(word: str, key: KeyFunction, keep_accents: bool) -> list[st
     candidates = {form for lemma in lemmas for found in getAllInflections(lemma).values() for form in found}
     wanted = set(key(word))
     itself = fold(word, keep_accents)
-    forms = {fold(form, keep_accents) for form in candidates if wanted.intersection(key(form))}
-    forms.discard(itself)
-    return sorted(forms)
+    forms = {fold(form, keep_accents=True) for form in candidates if wanted.intersection(key(form))}
+    return sorted(form for form in forms if fold(form, keep_accents) != itself)
