@@ -44,7 +44,7 @@ from sklearn.base import BaseEstimator
 
 from ..errors import InputError
 from ..text.inflect import NOUNS_CAPITALISED, base_language, fold, key_function
-from ..text.tokens import TokenStream, is_break_token, tokenize_corpus
+from ..text.tokens import TokenStream, tokenize_corpus
 from .lexicon import Lexicon
 from .nothing import builtin_phrases, nothing_to_report_mask
 
@@ -255,7 +255,7 @@ def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: n
     """
     document = np.searchsorted(stream.doc_offsets, positions, side="right") - 1
     previous = stream.codes[np.maximum(positions - 1, 0)]
-    inside = (positions > stream.doc_offsets[document]) & ~stream.vocabulary_flags(is_break_token)[previous]
+    inside = (positions > stream.doc_offsets[document]) & ~stream.break_flags[previous]
     candidates = np.flatnonzero(inside)
     if not len(candidates):
         return inside
