@@ -22,7 +22,7 @@ def _parse_groups(values: tuple[str, ...]) -> dict[str, str]:
     for value in values:
         column, sep, wanted = value.partition("=")
         if not sep or not column.strip():
-            raise InputError(f"expected COLUMN=VALUE, found {value!r}", column="--group")
+            raise InputError(f"expected COLUMN=VALUE, found {value!r}", option="--group")
         groups[column.strip()] = wanted.strip()
     return groups
 
@@ -79,7 +79,7 @@ def review_command(config: Path, out_path: Path, replace: bool, lexicon_path: Pa
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
         if question is not None and question not in survey.config.questions:
             raise InputError(f"question '{question}' is not in the survey config; valid: "
-                             f"{', '.join(survey.config.questions)}", column="--question")
+                             f"{', '.join(survey.config.questions)}", option="--question")
         progress("building the review sheet")
         show = [c for c in (survey.config.wave, *survey.config.groups) if c]
         table = review_table(survey.coded, survey.texts.tolist(), survey.result.evidence, survey.lexicon,
@@ -131,7 +131,7 @@ def sample_command(config: Path, size: int, out_path: Path, replace: bool, strat
     names = [name.strip() for name in coders.split(",") if name.strip()]
     repeated = sorted({name for name in names if names.count(name) > 1})
     if repeated:
-        raise InputError(f"coder '{repeated[0]}' is named twice; give each coder once", column="--coders")
+        raise InputError(f"coder '{repeated[0]}' is named twice; give each coder once", option="--coders")
     with steps(6, quiet) as progress:
         survey = code_survey(config, progress=progress, apply_corrections=False)
         progress("drawing the sample")
