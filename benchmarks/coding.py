@@ -7,6 +7,9 @@ trailing wildcards, a few exclusions), then times in one run:
 * baseline  - one ``re.findall(r"\\w+", text.lower())`` pass over the answers;
 * textkit   - tokenise once + ThemeCoder.fit + code (with evidence, and
   matrix only);
+* earlier   - the same engine with the defaults coding had before lemmas and
+  kept negations (``inflect: stem``, ``negated: drop``), to show what the new
+  defaults cost;
 * naive     - one regular-expression search per theme with pandas
   ``Series.str.contains`` (on a subsample of at most 100,000 answers, scaled
   linearly to N; the script says so).
@@ -17,11 +20,13 @@ next to a child that only generates them.
 
     python benchmarks/coding.py            # N = 1,000,000
     python benchmarks/coding.py --n 200000
+    python benchmarks/coding.py --naive-n 0   # skip the (slow) naive approach
 """
 
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import re
 import resource
@@ -88,6 +93,19 @@ def make_answers(n: int, seed: int = 7) -> tuple[list[str], str]:
     return answers, make_lexicon_yaml(vocabulary, np.random.default_rng(seed + 1))
 
 
+def earlier_defaults(lexicon):
+    """``lexicon`` with the defaults coding had before lemmas and kept negations: Snowball stems,
+    negated mentions dropped (the same engine, so the ratio isolates what the new defaults cost)."""
+    themes = tuple(dataclasses.replace(
+        theme, negated="drop",
+        terms=tuple(dataclasses.replace(term, inflect="stem" if term.inflect else term.inflect)
+                    for term in theme.terms),
+        exclusions=tuple(dataclasses.replace(term, inflect="stem" if term.inflect else term.inflect)
+                         for term in theme.exclusions))
+        for theme in lexicon.themes)
+    return dataclasses.replace(lexicon, themes=themes)
+
+
 def peak_rss_mib() -> float:
     """Peak resident memory of this process (VmHWM; ru_maxrss would carry the parent's over exec)."""
     with open("/proc/self/status", encoding="ascii") as status:
@@ -121,7 +139,8 @@ def time_it(function) -> tuple[float, object]:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--n", type=int, default=1_000_000, help="number of answers (default 1,000,000)")
-    parser.add_argument("--naive-n", type=int, default=100_000, help="subsample for the naive approach")
+    parser.add_argument("--naive-n", type=int, default=100_000,
+                        help="subsample for the naive approach (0: skip it)")
     parser.add_argument("--child", choices=["generate", "code"], help=argparse.SUPPRESS)
     options = parser.parse_args()
     if options.child:
@@ -164,6 +183,13 @@ def main() -> None:
 
     full, result = time_it(code_with_evidence)
     matrix_only, _ = time_it(code_matrix_only)
+    earlier = earlier_defaults(lexicon)
+
+    def code_with_earlier_defaults():
+        stream = tokenize_corpus(answers)
+        return ThemeCoder(earlier).fit(stream).code(stream, texts=answers)
+
+    earlier_full, _ = time_it(code_with_earlier_defaults)
 
     sample = pd.Series(answers[: min(n, options.naive_n)])
 
@@ -178,8 +204,8 @@ def main() -> None:
             columns[theme.id] = sample.str.contains(pattern, case=False, regex=True)
         return columns
 
-    naive_sample, _ = time_it(naive)
-    naive_scaled = naive_sample * n / len(sample)
+    naive_sample, _ = time_it(naive) if len(sample) else (float("nan"), None)
+    naive_scaled = naive_sample * n / max(len(sample), 1)
 
     memory = {}
     for mode in ("generate", "code"):
@@ -196,9 +222,12 @@ def main() -> None:
           f"ratio to baseline {full / baseline:.2f}x")
     print(f"textkit code (matrix only)      {matrix_only:8.2f} s   ({n / matrix_only:,.0f} answers/s)  "
           f"ratio to baseline {matrix_only / baseline:.2f}x")
+    print(f"textkit code, earlier defaults  {earlier_full:8.2f} s   (inflect: stem, negated: drop; "
+          f"the new defaults take {full / earlier_full:.2f}x its time)")
     scaled_note = "" if len(sample) == n else f" (timed on {len(sample):,}, scaled linearly to {n:,})"
-    print(f"naive str.contains per theme    {naive_scaled:8.2f} s{scaled_note}  "
-          f"textkit is {naive_scaled / full:.1f}x faster")
+    if len(sample):
+        print(f"naive str.contains per theme    {naive_scaled:8.2f} s{scaled_note}  "
+              f"textkit is {naive_scaled / full:.1f}x faster")
     print(f"peak RSS: generating only {memory['generate']:,.0f} MiB; generating + coding "
           f"{memory['code']:,.0f} MiB")
 

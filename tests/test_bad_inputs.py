@@ -297,6 +297,10 @@ CASES += [
      ["review", "survey.yaml", "--out", "review.xlsx"]),
     ("review: --out is a folder", lambda folder: (folder / "sheets").mkdir(),
      ["review", "survey.yaml", "--out", "sheets"]),
+    ("review: --out exists (codes may have been typed into it)", put("review.xlsx", b"typed-in corrections"),
+     ["review", "survey.yaml", "--out", "review.xlsx"]),
+    ("sample: --out exists (hand codes may have been typed into it)", put("codes.csv", "id,queue\nr1,1\n"),
+     ["sample", "survey.yaml", "--n", "2", "--out", "codes.csv"]),
     # sample
     ("sample: config not yaml", put("survey.yaml", "survey: [unclosed\n"),
      ["sample", "survey.yaml", "--n", "10", "--out", "sample.xlsx"]),

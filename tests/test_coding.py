@@ -137,6 +137,26 @@ def test_inflections_match_and_derivations_do_not(language):
             assert got == (relation == "match"), (language, term, answer)
 
 
+@pytest.mark.parametrize(("answer", "expected"), [
+    ("the steps down to Pellin Sands", set()),  # a capital inside a clause: part of a name
+    ("we walked to Quillon Gardens", {"t"}),  # a term written as the name has it still matches
+    ("sands everywhere", {"t"}), ("Sands everywhere", {"t"}),  # the capital opens the answer
+    ("Beaches, Sands, Views", {"t"}), ("beaches. Sands too", {"t"}),  # capitals after a break
+    ("SANDS EVERYWHERE", {"t"}),  # all capitals are not a name
+])
+def test_names_match_only_as_written(answer, expected):
+    # Names do not inflect (common practice): "Sands" in "Pellin Sands" is not sand.
+    lexicon = parse_lexicon("lexicon: x\nthemes:\n  - {id: t, label: T, terms: [sand, gardens]}\n")
+    assert coded(answer, lexicon) == expected
+    assert ThemeCoder(lexicon).fit([answer]).transform([answer]).toarray()[0].sum() == len(expected)
+
+
+def test_capitalised_nouns_inflect_in_languages_that_capitalise_them():
+    lexicon = parse_lexicon("lexicon: x\nlanguage: de\nthemes:\n  - {id: t, label: T, terms: [strand]}\n")
+    assert coded("wir waren am Strand und die Strände waren voll", lexicon) == {"t"}
+    assert coded("die vielen Strände", lexicon) == {"t"}
+
+
 def test_inflect_stem_follows_snowball_stemmer():
     # Reference: nltk's SnowballStemmer("english"): with inflect: stem a word matches "queue"/"try"
     # iff it has the same stem (or is the word itself).
@@ -497,10 +517,11 @@ def reference_code(lexicon, documents, window):
     stops = {",", ".", ";", ":", "!", "?", "(", ")", "[", "]", '"', "but", "however", "although",
              "though", "yet", "except"}
 
-    def word_matches(word, token, inflect):
+    def word_matches(word, token, inflect, in_name):
         if word.endswith("*"):
             return fold(token).startswith(fold(word[:-1]))
-        return fold(token) == fold(word) or bool(inflect and set(lemma_keys(token)) & set(lemma_keys(word)))
+        return fold(token) == fold(word) or bool(inflect and not in_name
+                                                 and set(lemma_keys(token)) & set(lemma_keys(word)))
 
     def literal(spelling, tokens, start):
         return sum(not w.endswith("*") and fold(tokens[start + k]) == fold(w) for k, w in enumerate(spelling))
@@ -514,11 +535,11 @@ def reference_code(lexicon, documents, window):
             return [words, tuple(p for p in words[0].split("-") if p)]
         return [words]
 
-    def spans_of(term, tokens):
+    def spans_of(term, tokens, in_name):
         found = []
         for spelling in spellings(term.words):
             for i in range(len(tokens) - len(spelling) + 1):
-                if all(word_matches(w, tokens[i + k], term.inflect) for k, w in enumerate(spelling)):
+                if all(word_matches(w, tokens[i + k], term.inflect, in_name[i + k]) for k, w in enumerate(spelling)):
                     found.append((i, i + len(spelling), literal(spelling, tokens, i)))
         return found
 
@@ -528,6 +549,9 @@ def reference_code(lexicon, documents, window):
     for d, document in enumerate(documents):
         tokens = tokenize(document) if isinstance(document, str) else []
         chars = token_spans(document) if tokens else []
+        written = [document[a:b] for a, b in chars]  # a capitalised word inside a clause is part of a name
+        in_name = [i > 0 and not is_break_token(tokens[i - 1]) and len(w) > 1 and w[0].isupper()
+                   and not w.isupper() for i, w in enumerate(written)]
         cue = [is_negation_cue(t) and not any(tuple(tokens[i:i + len(p)]) == p for p in non_negating)
                for i, t in enumerate(tokens)]
         negated = []
@@ -538,10 +562,10 @@ def reference_code(lexicon, documents, window):
                     inside = True
             negated.append(inside and not cue[i] and token not in stops and not is_break_token(token))
         for t, theme in enumerate(lexicon.themes):
-            vetoes = [span[:2] for term in theme.exclusions for span in spans_of(term, tokens)]
+            vetoes = [span[:2] for term in theme.exclusions for span in spans_of(term, tokens, in_name)]
             alive = []  # (start, end, (-words as written, term order), term text)
             for order, term in enumerate(theme.terms):
-                for start, end, exact in spans_of(term, tokens):
+                for start, end, exact in spans_of(term, tokens, in_name):
                     if theme.negated == "drop" and negated[start]:
                         continue
                     if any(a < end and start < b for a, b in vetoes):
@@ -564,7 +588,8 @@ def reference_code(lexicon, documents, window):
 
 POOL = ["queue", "queues", "queued", "wait", "waiting", "long", "free", "park", "parking", "rip-off",
         "rip", "off", "tries", "trying", "not", "no", "never", "but", ",", ".", "x", "ﬁsh", "Ｗａｉｔ",
-        "only", "/", "&", "\n", "can't", "went", "go", "children", "child", "café", "CAFE"]
+        "only", "/", "&", "\n", "can't", "went", "go", "children", "child", "café", "CAFE", "Queues", "Waited",
+        "Children", "Went", "Parks"]
 TERM_WORDS = ["queue", "wait", "long", "free", "park", "rip", "off", "rip-off", "try", "fish", "not", "no",
               "go", "child", "cafe"]
 

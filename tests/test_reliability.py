@@ -309,7 +309,7 @@ def slow(path):
     print("writing", flush=True)
     time.sleep(120)
 
-write_file(sys.argv[1], slow)
+write_file(sys.argv[1], slow, replace=True)
 """
 
 
@@ -328,7 +328,9 @@ def test_a_killed_single_file_write_leaves_no_part_file_and_the_next_write_clear
     leftovers = sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".review.xlsx.textkit-"))
     assert len(leftovers) == 1 and not leftovers[0].endswith(".part")  # a name the next run knows as ours
     assert target.read_bytes() == b"the earlier workbook"  # the kill left the old file whole
-    write_file(target, lambda path: Path(path).write_bytes(b"the new workbook"))
+    with pytest.raises(InputError, match="already exists"):
+        write_file(target, lambda path: Path(path).write_bytes(b"the new workbook"))
+    write_file(target, lambda path: Path(path).write_bytes(b"the new workbook"), replace=True)
     assert target.read_bytes() == b"the new workbook"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["other.txt", "review.xlsx"]  # no debris
 

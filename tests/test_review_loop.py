@@ -108,6 +108,7 @@ def test_review_filters(park, capsys):
     assert _sheet(folder / "u.xlsx", "review")[1]["response_id"].tolist() == ["a3", "a7"]
     code, _, err = run(["review", config, "--out", folder / "x.xlsx", "--theme", "nope", "--quiet"], capsys)
     assert code == 2 and "unknown theme 'nope'" in err
+    assert "option --theme:" in err and "column" not in err  # an option is named as an option
 
 
 def test_corrections_round_trip_survive_a_changed_lexicon(park, capsys):

@@ -26,6 +26,8 @@ class TextkitError(Exception):
         1-based data row number (header not counted) in ``source``.
     column : str, optional
         The column name involved.
+    option : str, optional
+        The command-line option involved ("--theme").
     """
 
     def __init__(
@@ -36,12 +38,14 @@ class TextkitError(Exception):
         line: int | None = None,
         row: int | None = None,
         column: str | None = None,
+        option: str | None = None,
     ) -> None:
         self.message = " ".join(str(message).split())
         self.source = str(source) if source is not None else None
         self.line = line
         self.row = row
         self.column = column
+        self.option = option
         super().__init__(self.__str__())
 
     def __str__(self) -> str:
@@ -55,6 +59,8 @@ class TextkitError(Exception):
             where.append(f"row {self.row}")
         if self.column is not None:
             where.append(f"column '{self.column}'")
+        if self.option is not None:
+            where.append(f"option {self.option}")
         prefix = place
         if where:
             prefix = f"{prefix} ({', '.join(where)})" if prefix else ", ".join(where)
@@ -107,7 +113,7 @@ class DataProblemsError(InputError):
         first = self.problems[0]
         if self.total == 1:
             super().__init__(first.message, source=first.source, line=first.line, row=first.row,
-                             column=first.column)
+                             column=first.column, option=first.option)
             return
         sources = list(dict.fromkeys(p.source for p in self.problems if p.source is not None))
         listed = "all listed below" if self.total == len(self.problems) else \

@@ -533,7 +533,7 @@ class _Stages:
             raise  # its lines already name each place; its constructor takes the problems, not a message
         except TextkitError as error:
             raise type(error)(f"in stage '{name}': {error.message}", source=error.source, line=error.line,
-                              row=error.row, column=error.column) from error
+                              row=error.row, column=error.column, option=error.option) from error
         self.timings[name] = round(time.perf_counter() - started, 3)
         self.progress(name, self.timings[name])
         return value

@@ -72,7 +72,7 @@ def _code_with_coder(config: Path, lexicon_path: Path | None, coder_path: Path, 
 
     if lexicon_path is not None:
         raise InputError("--lexicon and --coder cannot be combined: a coder is tied to the lexicon it was "
-                         "trained with", column="--coder")
+                         "trained with", option="--coder")
     return code_survey_with_coder(config, coder_path, mode=mode, progress=progress)
 
 
@@ -155,7 +155,8 @@ def lexicon_forms_command(lexicon: Path, config: Path | None, out_path: Path | N
     from ..text.inflect import base_language
 
     if out_path is not None and out_path.suffix.lower() != ".csv":
-        raise InputError("the forms table is written as CSV; give a file name ending in .csv", source=out_path)
+        raise InputError("the forms table is written as CSV; give a file name ending in .csv", source=out_path,
+                         option="--out")
     lex = load_lexicon(lexicon)
     inputs = [lexicon, config]
     vocabulary = None
@@ -235,7 +236,7 @@ def agreement_command(hand_coded: Path, lexicon_path: Path | None, config: Path 
     from ..io.workbook import read_coding_file
 
     if lexicon_path is None and config is None:
-        raise InputError("give --lexicon or --survey (whose config names the lexicon)", column="--lexicon")
+        raise InputError("give --lexicon or --survey (whose config names the lexicon)", option="--lexicon")
     part = read_coding_file(hand_coded, sheets=[sheet] if sheet else ())[0]
     check_hand_code_ids(part.frame, codes_column, part.place)
     texts = None

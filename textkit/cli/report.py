@@ -22,7 +22,7 @@ def _check_paths(out_dir: Path, hand_coded: Path | None) -> None:
         raise InputError("expected an output folder, found a file; choose another --out", source=out_dir)
     if hand_coded is not None and not hand_coded.is_file():
         raise InputError("the hand-coded sample was not found" if not hand_coded.exists()
-                         else "the hand-coded sample is not a file", source=hand_coded, column="--hand-coded")
+                         else "the hand-coded sample is not a file", source=hand_coded, option="--hand-coded")
 
 
 def _run(config: Path, out_dir: Path, summaries: str | None, hand_coded: Path | None, quiet: bool) -> None:

@@ -22,7 +22,7 @@ def _parse_groups(values: tuple[str, ...]) -> dict[str, str]:
     for value in values:
         column, sep, wanted = value.partition("=")
         if not sep or not column.strip():
-            raise InputError(f"expected COLUMN=VALUE, found {value!r}", column="--group")
+            raise InputError(f"expected COLUMN=VALUE, found {value!r}", option="--group")
         groups[column.strip()] = wanted.strip()
     return groups
 
@@ -45,6 +45,7 @@ def _sheets_for_review(table, lexicon):
 @click.argument("config", type=click.Path(path_type=Path))
 @click.option("--out", "out_path", required=True, type=click.Path(path_type=Path),
               help="The review workbook to write (.xlsx).")
+@click.option("--replace", is_flag=True, help="Replace the --out file if it exists.")
 @click.option("--lexicon", "lexicon_path", type=click.Path(path_type=Path), default=None,
               help="Use this lexicon instead of the one the config names.")
 @click.option("--theme", "themes", multiple=True, help="Only answers coded with this theme (repeatable).")
@@ -58,9 +59,9 @@ def _sheets_for_review(table, lexicon):
 @click.option("--limit", type=click.IntRange(min=1), default=None, help="At most this many rows.")
 @click.option("--seed", type=int, default=None, help="Seed for --sample (default: the config's seed).")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def review_command(config: Path, out_path: Path, lexicon_path: Path | None, themes: tuple[str, ...], uncoded: bool,
-                   groups: tuple[str, ...], wave: str | None, question: str | None, sample: int | None,
-                   limit: int | None, seed: int | None, quiet: bool) -> None:
+def review_command(config: Path, out_path: Path, replace: bool, lexicon_path: Path | None,
+                   themes: tuple[str, ...], uncoded: bool, groups: tuple[str, ...], wave: str | None,
+                   question: str | None, sample: int | None, limit: int | None, seed: int | None, quiet: bool) -> None:
     """Write a review workbook: every answer with its codes, the terms that fired, and room for corrections.
 
     Corrections go in the 'corrections' sheet (or the correct_* columns of the review
@@ -78,7 +79,7 @@ def review_command(config: Path, out_path: Path, lexicon_path: Path | None, them
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
         if question is not None and question not in survey.config.questions:
             raise InputError(f"question '{question}' is not in the survey config; valid: "
-                             f"{', '.join(survey.config.questions)}", column="--question")
+                             f"{', '.join(survey.config.questions)}", option="--question")
         progress("building the review sheet")
         show = [c for c in (survey.config.wave, *survey.config.groups) if c]
         table = review_table(survey.coded, survey.texts.tolist(), survey.result.evidence, survey.lexicon,
@@ -88,7 +89,8 @@ def review_command(config: Path, out_path: Path, lexicon_path: Path | None, them
                                   question=question, sample=sample, limit=limit,
                                   seed=survey.config.seed if seed is None else seed)
         inputs = [survey.config.path, survey.config.survey, survey.config.corrections, survey.lexicon.source]
-        write_file(out_path, workbook_writer(_sheets_for_review(table, survey.lexicon)), inputs=inputs)
+        write_file(out_path, workbook_writer(_sheets_for_review(table, survey.lexicon)), inputs=inputs,
+                   replace=replace)
     if quiet:
         return
     for note in survey.notes:
@@ -102,6 +104,7 @@ def review_command(config: Path, out_path: Path, lexicon_path: Path | None, them
 @click.option("--n", "size", required=True, type=click.IntRange(min=1), help="Answers to draw.")
 @click.option("--out", "out_path", required=True, type=click.Path(path_type=Path),
               help="The hand-coding sheet to write (.xlsx, or .csv without the definitions sheet).")
+@click.option("--replace", is_flag=True, help="Replace the --out file if it exists.")
 @click.option("--stratify", "strata", multiple=True,
               help="Sample in proportion within each value of this column (wave or a group; repeatable).")
 @click.option("--enrich", type=click.FloatRange(0, 1, max_open=True), default=0.0, show_default=True,
@@ -111,8 +114,8 @@ def review_command(config: Path, out_path: Path, lexicon_path: Path | None, them
                                             "gets one row per coder.")
 @click.option("--seed", type=int, default=None, help="Seed (default: the config's seed).")
 @click.option("--quiet", is_flag=True, help="No progress bar and no summary.")
-def sample_command(config: Path, size: int, out_path: Path, strata: tuple[str, ...], enrich: float, coders: str,
-                   seed: int | None, quiet: bool) -> None:
+def sample_command(config: Path, size: int, out_path: Path, replace: bool, strata: tuple[str, ...],
+                   enrich: float, coders: str, seed: int | None, quiet: bool) -> None:
     """Draw a seeded sample of answers for hand-coding, with one empty 0/1 column per theme."""
     import pandas as pd
 
@@ -128,7 +131,7 @@ def sample_command(config: Path, size: int, out_path: Path, strata: tuple[str, .
     names = [name.strip() for name in coders.split(",") if name.strip()]
     repeated = sorted({name for name in names if names.count(name) > 1})
     if repeated:
-        raise InputError(f"coder '{repeated[0]}' is named twice; give each coder once", column="--coders")
+        raise InputError(f"coder '{repeated[0]}' is named twice; give each coder once", option="--coders")
     with steps(6, quiet) as progress:
         survey = code_survey(config, progress=progress, apply_corrections=False)
         progress("drawing the sample")
@@ -146,7 +149,7 @@ def sample_command(config: Path, size: int, out_path: Path, strata: tuple[str, .
                       wrap=("description", "terms")),
                 Sheet("selection", cells),
             ])
-        write_file(out_path, writer, inputs=inputs)
+        write_file(out_path, writer, inputs=inputs, replace=replace)
     if quiet:
         return
     enriched = f", {enrich:.0%} from uncoded or single-term answers" if enrich else ""

@@ -43,7 +43,7 @@ import scipy.sparse as sp
 from sklearn.base import BaseEstimator
 
 from ..errors import InputError
-from ..text.inflect import fold, key_function
+from ..text.inflect import NOUNS_CAPITALISED, base_language, fold, key_function
 from ..text.tokens import TokenStream, tokenize_corpus
 from .lexicon import Lexicon
 from .nothing import builtin_phrases, nothing_to_report_mask
@@ -105,6 +105,7 @@ class _CompiledLexicon:
     """Lexicon flattened into arrays (terms then exclusions)."""
 
     patterns: tuple[tuple[str, bool, bool | str], ...]  # (word, is_prefix, inflect mode)
+    pattern_is_prefix: np.ndarray  # (n_patterns,) bool
     term_patterns: np.ndarray  # (n_terms, max_words) pattern ids, -1 padded
     term_lengths: np.ndarray  # (n_terms,)
     term_theme: np.ndarray  # (n_terms,) theme index
@@ -161,6 +162,7 @@ def _compile(lexicon: Lexicon) -> _CompiledLexicon:
         term_patterns[index, : len(ids)] = ids
     return _CompiledLexicon(
         patterns=tuple(pattern_ids),
+        pattern_is_prefix=np.array([prefix for _word, prefix, _mode in pattern_ids], dtype=bool),
         term_patterns=term_patterns,
         term_lengths=np.array([len(r) for r in rows], dtype=np.int64),
         term_theme=np.array(themes, dtype=np.int64),
@@ -238,11 +240,45 @@ def _resolve_patterns(compiled: _CompiledLexicon, vocabulary: np.ndarray,
     return matrix
 
 
-def _match_terms(stream: TokenStream, compiled: _CompiledLexicon, pattern_matrix: sp.csr_matrix
-                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _is_capitalised(word: str) -> bool:
+    """"Sands", "McKay": a capital first letter and not all capitals ("B&B", "WIFI" are not)."""
+    return len(word) > 1 and word[0].isupper() and not word.isupper()
+
+
+def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
+    """Per token position: a word written with a capital that does not open its clause ("Pellin Sands").
+
+    A clause opens at the start of the answer and after any break token, so list
+    items written with capitals ("Beaches, Views") are ordinary words. The stream
+    is lower-cased: the capitals are read in ``texts`` at the tokens' offsets
+    (re-tokenising only the answers concerned when the stream has no offsets).
+    """
+    document = np.searchsorted(stream.doc_offsets, positions, side="right") - 1
+    previous = stream.codes[np.maximum(positions - 1, 0)]
+    inside = (positions > stream.doc_offsets[document]) & ~stream.break_flags[previous]
+    candidates = np.flatnonzero(inside)
+    if not len(candidates):
+        return inside
+    if stream.starts is not None:
+        starts, ends = stream.starts[positions[candidates]], stream.ends[positions[candidates]]
+    else:
+        documents, first = np.unique(document[candidates], return_inverse=True)
+        offsets = tokenize_corpus([texts[d] for d in documents], offsets=True)
+        at = offsets.doc_offsets[first] + positions[candidates] - stream.doc_offsets[document[candidates]]
+        starts, ends = offsets.starts[at], offsets.ends[at]
+    spans = zip(document[candidates].tolist(), starts.tolist(), ends.tolist(), strict=True)
+    inside[candidates] = [_is_capitalised(texts[d][a:b]) for d, a, b in spans]
+    return inside
+
+
+def _match_terms(stream: TokenStream, compiled: _CompiledLexicon, pattern_matrix: sp.csr_matrix,
+                 texts: Sequence[str | None] | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """All term matches: (start token position, term id, words matched as written), each (n_matches,).
 
     Sorted by start, then by words matched as written (most first), then term id.
+    Given the original ``texts``, a word written with a capital inside a clause
+    (read as part of a name: "Pellin Sands", "Quillon Gardens") matches only as
+    written, never by inflection: names do not inflect.
     """
     n_patterns = max(len(compiled.patterns), 1)
     useful = np.diff(pattern_matrix.indptr) > 0
@@ -251,6 +287,11 @@ def _match_terms(stream: TokenStream, compiled: _CompiledLexicon, pattern_matrix
     occurrence_position = positions[occurrences.row]
     occurrence_pattern = occurrences.col.astype(np.int64)
     occurrence_exact = (occurrences.data == 2).astype(np.int64)
+    if texts is not None:
+        name = (occurrence_exact == 0) & ~compiled.pattern_is_prefix[occurrence_pattern]
+        name[name] = _inside_names(stream, texts, occurrence_position[name])
+        occurrence_position, occurrence_pattern, occurrence_exact = (
+            occurrence_position[~name], occurrence_pattern[~name], occurrence_exact[~name])
     keys = occurrence_position * n_patterns + occurrence_pattern
     key_order = np.argsort(keys, kind="stable")
     keys, key_exact = keys[key_order], occurrence_exact[key_order]
@@ -448,7 +489,7 @@ class ThemeCoder(BaseEstimator):
             pattern_matrix = _resolve_patterns(compiled, stream.vocabulary, self._key_cache,
                                                self.lexicon.language, self.lexicon.keep_accents)
         nothing = self._nothing_to_report(stream)
-        matches, dropped = self._counted_matches(stream, pattern_matrix, nothing)
+        matches, dropped = self._counted_matches(stream, pattern_matrix, nothing, texts)
         start, term, theme, length, negated = matches
         document = (np.searchsorted(stream.doc_offsets, start, side="right") - 1).astype(np.int64)
         shape = (stream.n_documents, len(self.lexicon.themes))
@@ -475,7 +516,8 @@ class ThemeCoder(BaseEstimator):
             phrases = self.lexicon.nothing_to_report
         return nothing_to_report_mask(stream, phrases, fillers)
 
-    def _counted_matches(self, stream: TokenStream, pattern_matrix: sp.csr_matrix, nothing: np.ndarray):
+    def _counted_matches(self, stream: TokenStream, pattern_matrix: sp.csr_matrix, nothing: np.ndarray,
+                         texts: Sequence[str | None] | None = None):
         """Matches that count: ``(start, term, theme, length, negated)`` arrays and the dropped counts.
 
         Exclusions veto overlapping matches of their theme; negated matches are
@@ -484,7 +526,8 @@ class ThemeCoder(BaseEstimator):
         more literal, for the same span) match of the same theme do not count.
         """
         compiled = self._compiled
-        start, term, exact = _match_terms(stream, compiled, pattern_matrix)
+        names = texts if base_language(self.lexicon.language) not in NOUNS_CAPITALISED else None
+        start, term, exact = _match_terms(stream, compiled, pattern_matrix, names)
         theme = compiled.term_theme[term]
         length = compiled.term_lengths[term]
         is_exclusion = compiled.term_is_exclusion[term]

@@ -26,7 +26,9 @@ Where the forms come from
   dictionary lists as inflections.
 
 Wildcard words (``queu*``) match prefixes, not inflections, and words of
-``inflect: false`` terms match as written: neither is listed.
+``inflect: false`` terms match as written: neither is listed. The forms are
+those of lower-case answer words: a capitalised word inside a clause is read
+as part of a name by the coder and matches only as written.
 """
 
 from __future__ import annotations

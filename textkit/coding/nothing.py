@@ -21,7 +21,7 @@ from importlib import resources
 import numpy as np
 
 from ..text.inflect import base_language
-from ..text.tokens import TokenStream, is_break_token, tokenize_corpus, word_tokens
+from ..text.tokens import TokenStream, tokenize_corpus, word_tokens
 
 #: Longest phrase, in words, after fillers are removed (bounds the segmentation).
 _MAX_PHRASE_WORDS = 8
@@ -60,16 +60,22 @@ def nothing_to_report_mask(stream: TokenStream, phrases: Sequence[str], fillers:
     phrase_words = {word for key in keys for word in key}
     vocabulary = stream.vocabulary
     is_phrase_word = stream.vocabulary_flags(lambda t: t in phrase_words)
-    ignorable = stream.vocabulary_flags(lambda t: t in fillers or is_break_token(t) or not _is_word(t))
+    ignorable = stream.break_flags | stream.vocabulary_flags(lambda t: t in fillers or not _is_word(t))
     foreign = ~(is_phrase_word | ignorable)
-    document = stream.document_index()
-    n_foreign = np.bincount(document, weights=foreign[stream.codes], minlength=stream.n_documents)
-    n_phrase = np.bincount(document, weights=is_phrase_word[stream.codes], minlength=stream.n_documents)
+    n_foreign = _per_document(stream, foreign)
+    n_phrase = _per_document(stream, is_phrase_word)
     for number in np.flatnonzero((n_foreign == 0) & (n_phrase > 0)):
         codes = stream.codes[stream.doc_offsets[number]:stream.doc_offsets[number + 1]]
         words = tuple(vocabulary[code] for code in codes if is_phrase_word[code])
         result[number] = _segments(words, keys)
     return result
+
+
+def _per_document(stream: TokenStream, flags: np.ndarray) -> np.ndarray:
+    """How many tokens of each document have a vocabulary flag set, shape (n_documents,)."""
+    running = np.zeros(stream.n_tokens + 1, dtype=np.int64)
+    np.cumsum(flags[stream.codes], out=running[1:])
+    return running[stream.doc_offsets[1:]] - running[stream.doc_offsets[:-1]]
 
 
 def _segments(words: tuple[str, ...], keys: set[tuple[str, ...]]) -> bool:

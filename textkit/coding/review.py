@@ -111,7 +111,7 @@ def select_for_review(table: pd.DataFrame, themes: Sequence[str], *, theme: Sequ
     unknown = [t for t in theme if t not in themes]
     if unknown:
         raise AnalysisError(f"unknown theme '{unknown[0]}'; the lexicon's themes are {', '.join(themes)}",
-                            column="--theme")
+                            option="--theme")
     if theme:
         keep &= table[list(theme)].to_numpy().astype(bool).any(axis=1)
     if uncoded:
@@ -119,7 +119,7 @@ def select_for_review(table: pd.DataFrame, themes: Sequence[str], *, theme: Sequ
     filters = dict(groups or {})
     if wave is not None:
         if wave_column is None:
-            raise AnalysisError("the survey config names no wave column", column="--wave")
+            raise AnalysisError("the survey config names no wave column", option="--wave")
         filters[wave_column] = wave
     if question is not None:
         filters["question"] = question

@@ -82,9 +82,9 @@ def draw_sample(coded: pd.DataFrame, texts: Sequence[str | None], themes: Sequen
     """
     if not 0 <= enrich < 1:
         raise AnalysisError(f"the enrichment share must be at least 0 and below 1, found {enrich}",
-                            column="--enrich")
+                            option="--enrich")
     if n <= 0:
-        raise AnalysisError(f"the sample size must be positive, found {n}", column="--n")
+        raise AnalysisError(f"the sample size must be positive, found {n}", option="--n")
     for column in strata:
         if column not in coded.columns:
             raise AnalysisError(f"no column '{column}' to stratify by; use the wave or a group the survey "

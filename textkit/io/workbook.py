@@ -207,8 +207,12 @@ def csv_for_spreadsheets_writer(frame: Any) -> Writer:
     return lambda path: safe_frame(frame).to_csv(path, index=False, encoding="utf-8-sig")
 
 
-def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path] = ()) -> Path:
+def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path] = (),
+               replace: bool = False) -> Path:
     """Write one file atomically: under a temporary name beside it, renamed into place when complete.
+
+    An existing file is replaced only with ``replace`` (a sheet written earlier may
+    hold hand codes or corrections typed into it since).
 
     What a killed earlier run left beside ``path`` (its temporary file, or a
     ``.NAME.*.part`` file of older versions) is removed first, once that run's
@@ -217,8 +221,8 @@ def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path]
     Raises
     ------
     InputError
-        When ``path`` is one of ``inputs`` (a run never overwrites what it reads) or
-        is a folder, or its folder cannot be created or written.
+        When ``path`` is one of ``inputs`` (a run never overwrites what it reads), is
+        a folder, exists and ``replace`` is false, or its folder cannot be created or written.
     """
     target = Path(path).expanduser()
     resolved = target.resolve()
@@ -228,6 +232,9 @@ def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path]
                              source=target)
     if target.is_dir():
         raise InputError("expected a file name for the output, found a folder", source=target)
+    if not replace and (target.exists() or target.is_symlink()):
+        raise InputError("the file already exists (it may hold codes typed in since); choose another name "
+                         "or pass --replace", source=target)
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
     except OSError as error:

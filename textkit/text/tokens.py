@@ -37,7 +37,7 @@ import re
 import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 from importlib import resources
 
 import numpy as np
@@ -266,9 +266,14 @@ class TokenStream:
         return np.fromiter((bool(predicate(token)) for token in self.vocabulary),
                            dtype=bool, count=len(self.vocabulary))
 
+    @cached_property
+    def break_flags(self) -> np.ndarray:
+        """Per vocabulary entry: is it a break token? shape (n_vocabulary,), bool (computed once)."""
+        return self.vocabulary_flags(is_break_token)
+
     def break_mask(self) -> np.ndarray:
         """Per token: is it a break token? shape (n_tokens,), bool."""
-        return self.vocabulary_flags(is_break_token)[self.codes]
+        return self.break_flags[self.codes]
 
     def negated_mask(self, window: int = 4) -> np.ndarray:
         """Per token: does it lie inside a negation scope? shape (n_tokens,), bool.
@@ -310,11 +315,12 @@ class TokenStream:
         """
         positions = np.asarray(positions, dtype=np.int64)
         cue_flags = self.vocabulary_flags(is_negation_cue)
-        stop_flags = self.vocabulary_flags(lambda t: is_break_token(t) or t in CONTRAST_WORDS)
+        stop_flags = self.break_flags | self.vocabulary_flags(lambda t: t in CONTRAST_WORDS)
         cue_positions = self.phrase_starts_removed(np.flatnonzero(cue_flags[self.codes]),
                                                    NON_NEGATING_PHRASES)
-        document_starts = self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]
-        stop_positions = np.union1d(np.flatnonzero(stop_flags[self.codes]), document_starts)
+        stops = stop_flags[self.codes]
+        stops[self.doc_offsets[:-1][np.diff(self.doc_offsets) > 0]] = True  # a scope ends with its answer
+        stop_positions = np.flatnonzero(stops)
 
         def last_at_or_before(sorted_positions: np.ndarray) -> np.ndarray:
             index = np.searchsorted(sorted_positions, positions, side="right") - 1
