@@ -62,20 +62,22 @@ def nothing_to_report_mask(stream: TokenStream, phrases: Sequence[str], fillers:
     is_phrase_word = stream.vocabulary_flags(lambda t: t in phrase_words)
     ignorable = stream.break_flags | stream.vocabulary_flags(lambda t: t in fillers or not _is_word(t))
     foreign = ~(is_phrase_word | ignorable)
-    n_foreign = _per_document(stream, foreign)
-    n_phrase = _per_document(stream, is_phrase_word)
-    for number in np.flatnonzero((n_foreign == 0) & (n_phrase > 0)):
+    candidates = _any_per_document(stream, is_phrase_word) & ~_any_per_document(stream, foreign)
+    for number in np.flatnonzero(candidates):
         codes = stream.codes[stream.doc_offsets[number]:stream.doc_offsets[number + 1]]
         words = tuple(vocabulary[code] for code in codes if is_phrase_word[code])
         result[number] = _segments(words, keys)
     return result
 
 
-def _per_document(stream: TokenStream, flags: np.ndarray) -> np.ndarray:
-    """How many tokens of each document have a vocabulary flag set, shape (n_documents,)."""
-    running = np.zeros(stream.n_tokens + 1, dtype=np.int64)
-    np.cumsum(flags[stream.codes], out=running[1:])
-    return running[stream.doc_offsets[1:]] - running[stream.doc_offsets[:-1]]
+def _any_per_document(stream: TokenStream, flags: np.ndarray) -> np.ndarray:
+    """Does any token of each document have its vocabulary flag set? shape (n_documents,), bool."""
+    starts = stream.doc_offsets[:-1]
+    filled = np.diff(stream.doc_offsets) > 0  # reduceat would give an empty document its neighbour's token
+    result = np.zeros(stream.n_documents, dtype=bool)
+    if filled.any():
+        result[filled] = np.logical_or.reduceat(flags[stream.codes], starts[filled])
+    return result
 
 
 def _segments(words: tuple[str, ...], keys: set[tuple[str, ...]]) -> bool:
