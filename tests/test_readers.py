@@ -553,3 +553,27 @@ def test_answered_mask_agrees_with_plain_python(answers):
     expected = [a is not None and normalise_answer(a) != "" and normalise_answer(a) not in non_answers
                 for a in answers]
     assert answered_mask(pd.Series(answers, dtype=object), non_answers).tolist() == expected
+
+
+@pytest.mark.parametrize("suffix", ["csv", "xlsx"])
+def test_line_breaks_inside_a_cell_stay_clause_breaks(tmp_path, suffix):
+    # A cell typed over two lines ("long" / "wait") is two clauses: the phrase "long wait" must not
+    # match across the line break, while the word on each line still does.
+    from textkit.coding.coder import ThemeCoder
+    from textkit.coding.lexicon import parse_lexicon
+
+    frame = pd.DataFrame({"response_id": ["r1", "r2"], "comment": ["a long\nwait", "a long\r\nwait"]})
+    path = tmp_path / f"v.{suffix}"
+    if suffix == "csv":
+        frame.to_csv(path, index=False)
+    else:
+        frame.to_excel(path, index=False, engine="openpyxl")
+    read, _ = read_unchanged(path)
+    assert "\n" in read["comment"].iloc[0] and "\n" in read["comment"].iloc[1]
+    lexicon = parse_lexicon("lexicon: x\nthemes:\n  - {id: phrase, label: P, terms: [long wait]}\n"
+                            "  - {id: word, label: W, terms: [wait]}\n")
+    texts = read["comment"].tolist()
+    matrix = ThemeCoder(lexicon).fit(texts).transform(texts).toarray()
+    assert matrix[:, 0].tolist() == [0, 0] and matrix[:, 1].tolist() == [1, 1]
+    one_line = ["a long wait"]
+    assert ThemeCoder(lexicon).fit(one_line).transform(one_line).toarray()[0, 0] == 1
