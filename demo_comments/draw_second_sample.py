@@ -58,15 +58,24 @@ def draw(survey: pd.DataFrame, exclude: set[str], seed: int = SEED) -> pd.DataFr
     return sample[["response_id", "question", "wave", "text"]]
 
 
-def main(out: str | Path | None = None) -> Path:
-    """Write the draft (with empty ``themes`` and ``coder_note`` columns) and return its path."""
+def write_draft(path: Path, earlier_samples: tuple[str, ...], seed: int) -> Path:
+    """Draw with ``seed``, leaving out the respondents of ``earlier_samples`` (files in this folder);
+    write the draft (with empty ``themes`` and ``coder_note`` columns) to ``path``."""
     survey = pd.read_csv(HERE / "survey.csv", dtype=str, keep_default_na=False, encoding="utf-8")
-    first = pd.read_csv(HERE / "hand_coded.csv", dtype=str, usecols=["response_id"],
-                        keep_default_na=False, encoding="utf-8")
-    sample = draw(survey, set(first["response_id"])).assign(themes="", coder_note="")
-    path = Path(out) if out is not None else HERE / "hand_coded_second_draft.csv"
+    exclude: set[str] = set()
+    for name in earlier_samples:
+        ids = pd.read_csv(HERE / name, dtype=str, usecols=["response_id"], keep_default_na=False,
+                          encoding="utf-8")
+        exclude |= set(ids["response_id"])
+    sample = draw(survey, exclude, seed=seed).assign(themes="", coder_note="")
     path.write_bytes(sample.to_csv(index=False, lineterminator="\n").encode("utf-8"))
     return path
+
+
+def main(out: str | Path | None = None) -> Path:
+    """Write the second sample's draft and return its path."""
+    path = Path(out) if out is not None else HERE / "hand_coded_second_draft.csv"
+    return write_draft(path, ("hand_coded.csv",), SEED)
 
 
 if __name__ == "__main__":

@@ -16,8 +16,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import pandas as pd
-from draw_second_sample import draw
+from draw_second_sample import write_draft
 
 HERE = Path(__file__).resolve().parent
 SEED = 20261206
@@ -25,16 +24,9 @@ EARLIER_SAMPLES = ("hand_coded.csv", "hand_coded_second.csv")
 
 
 def main(out: str | Path | None = None) -> Path:
-    """Write the draft (with empty ``themes`` and ``coder_note`` columns) and return its path."""
-    survey = pd.read_csv(HERE / "survey.csv", dtype=str, keep_default_na=False, encoding="utf-8")
-    exclude: set[str] = set()
-    for name in EARLIER_SAMPLES:
-        ids = pd.read_csv(HERE / name, dtype=str, usecols=["response_id"], keep_default_na=False)
-        exclude |= set(ids["response_id"])
-    sample = draw(survey, exclude, seed=SEED).assign(themes="", coder_note="")
+    """Write the third sample's draft and return its path."""
     path = Path(out) if out is not None else HERE / "hand_coded_third_draft.csv"
-    path.write_bytes(sample.to_csv(index=False, lineterminator="\n").encode("utf-8"))
-    return path
+    return write_draft(path, EARLIER_SAMPLES, SEED)
 
 
 if __name__ == "__main__":

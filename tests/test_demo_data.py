@@ -158,3 +158,22 @@ def test_hand_coded_sample(survey):
     assert (joined["text"] == joined["answer"]).all()
     waves = survey.set_index("response_id").loc[gold["response_id"], "wave"]
     assert set(waves) == {"2025", "2026"}
+
+
+@pytest.mark.parametrize(("script", "sample"), [("draw_second_sample.py", "hand_coded_second.csv"),
+                                                ("draw_third_sample.py", "hand_coded_third.csv")])
+def test_validation_samples_are_the_seeded_draws_their_scripts_describe(script, sample, tmp_path, monkeypatch):
+    # The hand-coded validation samples hold exactly the answers their seeded draw gives (same ids,
+    # order and text), and no respondent appears in two samples.
+    monkeypatch.syspath_prepend(str(DEMO))
+    spec = importlib.util.spec_from_file_location(f"demo_{script[:-3]}", DEMO / script)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    drawn = pd.read_csv(module.main(tmp_path / "draft.csv"), dtype=str, keep_default_na=False)
+    coded = pd.read_csv(DEMO / sample, dtype=str, keep_default_na=False)
+    columns = ["response_id", "question", "wave", "text"]
+    pd.testing.assert_frame_equal(drawn[columns], coded[columns])
+    others = {name for name in ("hand_coded.csv", "hand_coded_second.csv", "hand_coded_third.csv") if name != sample}
+    for other in others:
+        earlier = set(pd.read_csv(DEMO / other, dtype=str, keep_default_na=False)["response_id"])
+        assert not earlier & set(coded["response_id"]), other
