@@ -31,23 +31,15 @@ ROOT = Path(__file__).resolve().parents[1]
 def child(n: int) -> None:
     """Time both codings with whichever textkit comes first on the path; print two numbers."""
     sys.path.insert(0, str(Path(__file__).resolve().parent))
-    from coding import make_answers
+    from coding import coding_steps, make_answers
 
     from textkit.coding.coder import ThemeCoder
     from textkit.coding.lexicon import parse_lexicon
-    from textkit.text.tokens import tokenize_corpus
 
     answers, lexicon_text = make_answers(n)
     lexicon = parse_lexicon(lexicon_text)
     ThemeCoder(lexicon).fit(answers[:50]).code(answers[:50])  # one-off imports are not timed
-
-    def with_evidence():
-        stream = tokenize_corpus(answers)
-        return ThemeCoder(lexicon).fit(stream).code(stream, texts=answers)
-
-    def matrix_only():
-        stream = tokenize_corpus(answers, offsets=False)
-        return ThemeCoder(lexicon).fit(stream).transform(stream)
+    with_evidence, matrix_only = coding_steps(answers, lexicon)
 
     times = []
     for work in (with_evidence, matrix_only):
