@@ -22,6 +22,7 @@ from textkit.errors import InputError
 from textkit.text.inflect import fold, key_function
 from textkit.text.tokens import (
     NON_NEGATING_PHRASES,
+    default_stop_words,
     is_break_token,
     is_negation_cue,
     token_spans,
@@ -138,10 +139,12 @@ def test_inflections_match_and_derivations_do_not(language):
 
 
 @pytest.mark.parametrize(("answer", "expected"), [
-    ("the steps down to Pellin Sands", set()),  # a capital inside a clause: part of a name
+    ("the steps down to Pellin Sands", set()),  # capitalised words side by side: a name
+    ("Pellin Sands was busy", set()), ("the Sands Hotel bar", set()),  # the name's other word before or after
     ("we walked to Quillon Gardens", {"t"}),  # a term written as the name has it still matches
     ("sands everywhere", {"t"}), ("Sands everywhere", {"t"}),  # the capital opens the answer
     ("Beaches, Sands, Views", {"t"}), ("beaches. Sands too", {"t"}),  # capitals after a break
+    ("the Sands were lovely", {"t"}), ("The Sands were lovely", {"t"}),  # a lone capital, or after a stop word
     ("SANDS EVERYWHERE", {"t"}),  # all capitals are not a name
 ])
 def test_names_match_only_as_written(answer, expected):
@@ -513,6 +516,7 @@ def reference_code(lexicon, documents, window):
     after roll-up and the evidence rows.
     """
     lemma_keys = key_function(True, lexicon.language, lexicon.keep_accents)
+    stop_words = default_stop_words()
     non_negating = [tuple(tokenize(phrase)) for phrase in NON_NEGATING_PHRASES]
     stops = {",", ".", ";", ":", "!", "?", "(", ")", "[", "]", '"', "but", "however", "although",
              "though", "yet", "except"}
@@ -549,9 +553,11 @@ def reference_code(lexicon, documents, window):
     for d, document in enumerate(documents):
         tokens = tokenize(document) if isinstance(document, str) else []
         chars = token_spans(document) if tokens else []
-        written = [document[a:b] for a, b in chars]  # a capitalised word inside a clause is part of a name
-        in_name = [i > 0 and not is_break_token(tokens[i - 1]) and len(w) > 1 and w[0].isupper()
-                   and not w.isupper() for i, w in enumerate(written)]
+        written = [document[a:b] for a, b in chars]  # capitalised words side by side in a clause: a name
+        capital = [len(w) > 1 and w[0].isupper() and not w.isupper() for w in written]
+        named = [capital[i] and t not in stop_words and not is_break_token(t) for i, t in enumerate(tokens)]
+        in_name = [capital[i] and i > 0 and not is_break_token(tokens[i - 1])
+                   and (named[i - 1] or (i + 1 < len(tokens) and named[i + 1])) for i in range(len(tokens))]
         cue = [is_negation_cue(t) and not any(tuple(tokens[i:i + len(p)]) == p for p in non_negating)
                for i, t in enumerate(tokens)]
         negated = []
@@ -589,7 +595,7 @@ def reference_code(lexicon, documents, window):
 POOL = ["queue", "queues", "queued", "wait", "waiting", "long", "free", "park", "parking", "rip-off",
         "rip", "off", "tries", "trying", "not", "no", "never", "but", ",", ".", "x", "ﬁsh", "Ｗａｉｔ",
         "only", "/", "&", "\n", "can't", "went", "go", "children", "child", "café", "CAFE", "Queues", "Waited",
-        "Children", "Went", "Parks"]
+        "Children", "Went", "Parks", "The", "Pellin"]
 TERM_WORDS = ["queue", "wait", "long", "free", "park", "rip", "off", "rip-off", "try", "fish", "not", "no",
               "go", "child", "cafe"]
 

@@ -44,7 +44,7 @@ from sklearn.base import BaseEstimator
 
 from ..errors import InputError
 from ..text.inflect import NOUNS_CAPITALISED, base_language, fold, key_function
-from ..text.tokens import TokenStream, tokenize_corpus
+from ..text.tokens import TokenStream, default_stop_words, tokenize_corpus
 from .lexicon import Lexicon
 from .nothing import builtin_phrases, nothing_to_report_mask
 
@@ -245,29 +245,46 @@ def _is_capitalised(word: str) -> bool:
     return len(word) > 1 and word[0].isupper() and not word.isupper()
 
 
-def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
-    """Per token position: a word written with a capital that does not open its clause ("Pellin Sands").
+def _written_capitalised(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
+    """Per token position: is the word, as written in ``texts``, capitalised? shape (len(positions),), bool.
 
-    A clause opens at the start of the answer and after any break token, so list
-    items written with capitals ("Beaches, Views") are ordinary words. The stream
-    is lower-cased: the capitals are read in ``texts`` at the tokens' offsets
-    (re-tokenising only the answers concerned when the stream has no offsets).
+    The stream is lower-cased: the capitals are read in ``texts`` at the tokens'
+    offsets (re-tokenising only the answers concerned when the stream has none).
     """
     document = np.searchsorted(stream.doc_offsets, positions, side="right") - 1
-    previous = stream.codes[np.maximum(positions - 1, 0)]
-    inside = (positions > stream.doc_offsets[document]) & ~stream.break_flags[previous]
+    if stream.starts is not None:
+        starts, ends = stream.starts[positions], stream.ends[positions]
+    else:
+        documents, first = np.unique(document, return_inverse=True)
+        offsets = tokenize_corpus([texts[d] for d in documents], offsets=True)
+        at = offsets.doc_offsets[first] + positions - stream.doc_offsets[document]
+        starts, ends = offsets.starts[at], offsets.ends[at]
+    spans = zip(document.tolist(), starts.tolist(), ends.tolist(), strict=True)
+    return np.array([_is_capitalised(texts[d][a:b]) for d, a, b in spans], dtype=bool)
+
+
+def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
+    """Per token position: part of a name of several capitalised words ("Pellin Sands", "Quillon Gardens").
+
+    The word is written with a capital, does not open its clause (the start of the
+    answer or any break token: "Beaches, Views" are list items), and its
+    neighbour in the clause is capitalised too and not a stop word (so "The
+    Beaches" and a lone "the Toilets" are ordinary words).
+    """
+    document = np.searchsorted(stream.doc_offsets, positions, side="right") - 1
+    previous = np.maximum(positions - 1, 0)
+    inside = (positions > stream.doc_offsets[document]) & ~stream.break_flags[stream.codes[previous]]
     candidates = np.flatnonzero(inside)
     if not len(candidates):
         return inside
-    if stream.starts is not None:
-        starts, ends = stream.starts[positions[candidates]], stream.ends[positions[candidates]]
-    else:
-        documents, first = np.unique(document[candidates], return_inverse=True)
-        offsets = tokenize_corpus([texts[d] for d in documents], offsets=True)
-        at = offsets.doc_offsets[first] + positions[candidates] - stream.doc_offsets[document[candidates]]
-        starts, ends = offsets.starts[at], offsets.ends[at]
-    spans = zip(document[candidates].tolist(), starts.tolist(), ends.tolist(), strict=True)
-    inside[candidates] = [_is_capitalised(texts[d][a:b]) for d, a, b in spans]
+    here = positions[candidates]
+    following = np.minimum(here + 1, max(stream.n_tokens - 1, 0))
+    stops = stream.vocabulary_flags(default_stop_words().__contains__) | stream.break_flags
+    before_named = ~stops[stream.codes[here - 1]]
+    after_named = (here + 1 < stream.doc_offsets[document[candidates] + 1]) & ~stops[stream.codes[following]]
+    asked = np.concatenate([here, here - 1, following])
+    capitals = _written_capitalised(stream, texts, asked).reshape(3, len(here))
+    inside[candidates] = capitals[0] & ((before_named & capitals[1]) | (after_named & capitals[2]))
     return inside
 
 
@@ -276,9 +293,10 @@ def _match_terms(stream: TokenStream, compiled: _CompiledLexicon, pattern_matrix
     """All term matches: (start token position, term id, words matched as written), each (n_matches,).
 
     Sorted by start, then by words matched as written (most first), then term id.
-    Given the original ``texts``, a word written with a capital inside a clause
-    (read as part of a name: "Pellin Sands", "Quillon Gardens") matches only as
-    written, never by inflection: names do not inflect.
+    Given the original ``texts``, the words of a name (capitalised words side by
+    side inside a clause: "Pellin Sands", "Quillon Gardens"; see
+    :func:`_inside_names`) match only as written, never by inflection: names do
+    not inflect.
     """
     n_patterns = max(len(compiled.patterns), 1)
     useful = np.diff(pattern_matrix.indptr) > 0
