@@ -277,14 +277,17 @@ def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: n
     candidates = np.flatnonzero(inside)
     if not len(candidates):
         return inside
+    inside[candidates] = _written_capitalised(stream, texts, positions[candidates])
+    candidates = np.flatnonzero(inside)  # the few written with a capital: now their neighbours
+    if not len(candidates):
+        return inside
     here = positions[candidates]
     following = np.minimum(here + 1, max(stream.n_tokens - 1, 0))
     stops = stream.vocabulary_flags(default_stop_words().__contains__) | stream.break_flags
     before_named = ~stops[stream.codes[here - 1]]
     after_named = (here + 1 < stream.doc_offsets[document[candidates] + 1]) & ~stops[stream.codes[following]]
-    asked = np.concatenate([here, here - 1, following])
-    capitals = _written_capitalised(stream, texts, asked).reshape(3, len(here))
-    inside[candidates] = capitals[0] & ((before_named & capitals[1]) | (after_named & capitals[2]))
+    capitals = _written_capitalised(stream, texts, np.concatenate([here - 1, following])).reshape(2, len(here))
+    inside[candidates] = (before_named & capitals[0]) | (after_named & capitals[1])
     return inside
 
 
