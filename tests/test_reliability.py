@@ -135,6 +135,31 @@ def test_a_read_only_folder_is_named_not_a_temporary_file(tmp_path):
         parent.chmod(0o700)
 
 
+def test_a_parent_that_refuses_the_temporary_folder_falls_back_to_writing_inside(tmp_path, monkeypatch):
+    # Root may write anywhere, so a read-only parent is simulated: making the temporary folder
+    # beside --out fails as a locked parent makes it fail. An existing folder is then written in
+    # place, file by file; a folder that does not exist yet is refused with its name.
+    import textkit.io.output as output
+
+    out = tmp_path / "out"
+    write_outputs(out, {"a.csv": csv_writer(pd.DataFrame({"x": [1]}))}, {"command": "test"})
+    real = output._temporary_folder  # (a previous result: replaced as a whole when the parent allows)
+
+    def parent_locked(parent, stem, target):
+        if parent == target.parent:
+            raise output._fail(target, None, PermissionError(13, "Permission denied"))
+        return real(parent, stem, target)
+
+    monkeypatch.setattr(output, "_temporary_folder", parent_locked)
+    write_outputs(out, {"a.csv": csv_writer(pd.DataFrame({"x": [2]}))}, {"command": "test"})
+    assert (out / "a.csv").read_text(encoding="utf-8") == "x\n2\n"
+    assert sorted(p.name for p in out.iterdir()) == ["a.csv", "manifest.json"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]  # no temporary folder left anywhere
+    with pytest.raises(InputError, match=r"new: cannot write to the output folder: Permission denied"):
+        write_outputs(tmp_path / "new", {"a.csv": csv_writer(pd.DataFrame({"x": [1]}))})
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]
+
+
 def test_other_files_in_the_folder_are_kept(tmp_path):
     out = tmp_path / "out"
     out.mkdir()

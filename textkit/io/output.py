@@ -326,55 +326,64 @@ def temporary_file(target: Path) -> Path:
     return Path(name)
 
 
-def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Path]:
+def _staged_write(folder: Path, stem: str, out: Path, plan: Mapping[str, Writer],
+                  install: Callable[[Path], None],
+                  fallback: Callable[[], list[Path] | None] | None = None) -> list[Path]:
+    """Write ``plan`` into a temporary folder made in ``folder``, then ``install`` it (signals held).
+
+    Whatever is left of the temporary folder is removed. When the temporary folder
+    cannot be made at all, ``fallback`` (if given and it returns paths) does the work.
+    """
     staging: Path | None = None
     try:
         with signals_held():  # so that a signal cannot strike between creating and knowing the folder
-            staging = _temporary_folder(out.parent, f".{out.name}", out)
+            staging = _temporary_folder(folder, stem, out)
         _write_all(staging, plan, out)
         with signals_held():
-            if replace:
-                retired = staging.with_name(staging.name.replace("-new-", "-old-", 1))
-                os.rename(out, retired)
-                try:
-                    os.rename(staging, out)
-                except OSError:
-                    os.rename(retired, out)
-                    raise
-                shutil.rmtree(retired, ignore_errors=True)
-            else:
-                with contextlib.suppress(FileNotFoundError):
-                    out.rmdir()  # an empty folder (anything else makes rmdir fail, and rename too)
-                os.rename(staging, out)
+            install(staging)
     except InputError:
-        if staging is None and out.is_dir():  # the parent may be read-only while the folder is not
-            return _merge_into(out, plan)
-        raise
+        written = fallback() if staging is None and fallback is not None else None
+        if written is None:
+            raise
+        return written
     except OSError as error:
         raise _fail(out, None, error) from None
     finally:
         if staging is not None:
             shutil.rmtree(staging, ignore_errors=True)
     return [out / name for name in plan]
+
+
+def _swap_into(out: Path, plan: Mapping[str, Writer], replace: bool) -> list[Path]:
+    def install(staging: Path) -> None:
+        if replace:
+            retired = staging.with_name(staging.name.replace("-new-", "-old-", 1))
+            os.rename(out, retired)
+            try:
+                os.rename(staging, out)
+            except OSError:
+                os.rename(retired, out)
+                raise
+            shutil.rmtree(retired, ignore_errors=True)
+        else:
+            with contextlib.suppress(FileNotFoundError):
+                out.rmdir()  # an empty folder (anything else makes rmdir fail, and rename too)
+            os.rename(staging, out)
+
+    def in_place() -> list[Path] | None:  # the parent may be read-only while the folder is not
+        return _merge_into(out, plan) if out.is_dir() else None
+
+    return _staged_write(out.parent, f".{out.name}", out, plan, install, in_place)
 
 
 def _merge_into(out: Path, plan: Mapping[str, Writer]) -> list[Path]:
-    staging: Path | None = None
-    try:
-        with signals_held():
-            staging = _temporary_folder(out, "", out)
-        _write_all(staging, plan, out)
-        with signals_held():
-            for name in plan:
-                if "/" in name:
-                    (out / name).parent.mkdir(parents=True, exist_ok=True)
-                os.replace(staging / name, out / name)
-    except OSError as error:
-        raise _fail(out, None, error) from None
-    finally:
-        if staging is not None:
-            shutil.rmtree(staging, ignore_errors=True)
-    return [out / name for name in plan]
+    def install(staging: Path) -> None:
+        for name in plan:
+            if "/" in name:
+                (out / name).parent.mkdir(parents=True, exist_ok=True)
+            os.replace(staging / name, out / name)
+
+    return _staged_write(out, "", out, plan, install)
 
 
 def _alive(pid: int) -> bool:
