@@ -152,7 +152,9 @@ def test_corrections_round_trip_survive_a_changed_lexicon(park, capsys):
     assert json.loads((folder / "out-v2.yaml" / "manifest.json").read_text())["corrections"]["codes_changed"] == 3
     assert (folder / "review.xlsx").read_bytes() == before  # the input is never changed
     code, _, err = run(["review", config, "--out", folder / "review.xlsx", "--quiet"], capsys)
-    assert code == 2 and "overwrite an input" in err
+    assert code == 2 and "already exists" in err
+    code, _, err = run(["review", config, "--out", folder / "review.xlsx", "--quiet", "--replace"], capsys)
+    assert code == 2 and "overwrite an input" in err  # --replace never reaches an input
 
 
 @pytest.mark.parametrize("row, message", [

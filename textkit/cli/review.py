@@ -70,11 +70,12 @@ def review_command(config: Path, out_path: Path, replace: bool, lexicon_path: Pa
     """
     from ..coding.review import review_table, select_for_review
     from ..errors import InputError
-    from ..io.workbook import workbook_writer, write_file
+    from ..io.workbook import refuse_existing, workbook_writer, write_file
     from ..pipeline import code_survey
 
     if out_path.suffix.lower() != ".xlsx":
         raise InputError("the review workbook must end in .xlsx", source=out_path)
+    refuse_existing(out_path, replace)  # before the work, not only after it
     with steps(6, quiet) as progress:
         survey = code_survey(config, lexicon=lexicon_path, progress=progress)
         if question is not None and question not in survey.config.questions:
@@ -122,12 +123,13 @@ def sample_command(config: Path, size: int, out_path: Path, replace: bool, strat
     from ..coding.review import theme_definitions
     from ..coding.sampling import draw_sample
     from ..errors import InputError
-    from ..io.workbook import Sheet, csv_for_spreadsheets_writer, workbook_writer, write_file
+    from ..io.workbook import Sheet, csv_for_spreadsheets_writer, refuse_existing, workbook_writer, write_file
     from ..pipeline import code_survey
 
     suffix = out_path.suffix.lower()
     if suffix not in (".xlsx", ".csv"):
         raise InputError("the hand-coding sheet must end in .xlsx or .csv", source=out_path)
+    refuse_existing(out_path, replace)  # before the work, not only after it
     names = [name.strip() for name in coders.split(",") if name.strip()]
     repeated = sorted({name for name in names if names.count(name) > 1})
     if repeated:

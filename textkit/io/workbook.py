@@ -207,6 +207,14 @@ def csv_for_spreadsheets_writer(frame: Any) -> Writer:
     return lambda path: safe_frame(frame).to_csv(path, index=False, encoding="utf-8-sig")
 
 
+def refuse_existing(path: str | Path, replace: bool = False) -> None:
+    """Refuse (InputError) an existing ``path`` unless ``replace``: a sheet written earlier may hold codes."""
+    target = Path(path).expanduser()
+    if not replace and (target.exists() or target.is_symlink()) and not target.is_dir():
+        raise InputError("the file already exists (it may hold codes typed in since); choose another name "
+                         "or pass --replace", source=target)
+
+
 def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path] = (),
                replace: bool = False) -> Path:
     """Write one file atomically: under a temporary name beside it, renamed into place when complete.
@@ -232,9 +240,7 @@ def write_file(path: str | Path, writer: Writer, *, inputs: Iterable[str | Path]
                              source=target)
     if target.is_dir():
         raise InputError("expected a file name for the output, found a folder", source=target)
-    if not replace and (target.exists() or target.is_symlink()):
-        raise InputError("the file already exists (it may hold codes typed in since); choose another name "
-                         "or pass --replace", source=target)
+    refuse_existing(target, replace)
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
     except OSError as error:
