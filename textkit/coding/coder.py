@@ -245,22 +245,26 @@ def _is_capitalised(word: str) -> bool:
     return len(word) > 1 and word[0].isupper() and not word.isupper()
 
 
-def _written_capitalised(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
-    """Per token position: is the word, as written in ``texts``, capitalised? shape (len(positions),), bool.
+def _capital_reader(stream: TokenStream, texts: Sequence[str | None], documents: np.ndarray):
+    """A function (positions, their documents) -> is each word capitalised as written in ``texts``?
 
-    The stream is lower-cased: the capitals are read in ``texts`` at the tokens'
-    offsets (re-tokenising only the answers concerned when the stream has none).
+    The stream is lower-cased: capitals are read in ``texts`` at the tokens'
+    offsets. A stream without offsets has ``documents`` (sorted, unique; every
+    position asked must lie in one of them) re-tokenised once, with offsets.
     """
-    document = np.searchsorted(stream.doc_offsets, positions, side="right") - 1
     if stream.starts is not None:
-        starts, ends = stream.starts[positions], stream.ends[positions]
+        starts, ends, base = stream.starts, stream.ends, None
     else:
-        documents, first = np.unique(document, return_inverse=True)
-        offsets = tokenize_corpus([texts[d] for d in documents], offsets=True)
-        at = offsets.doc_offsets[first] + positions - stream.doc_offsets[document]
-        starts, ends = offsets.starts[at], offsets.ends[at]
-    spans = zip(document.tolist(), starts.tolist(), ends.tolist(), strict=True)
-    return np.array([_is_capitalised(texts[d][a:b]) for d, a, b in spans], dtype=bool)
+        again = tokenize_corpus([texts[d] for d in documents], offsets=True)
+        starts, ends, base = again.starts, again.ends, again.doc_offsets
+
+    def capitalised(positions: np.ndarray, document: np.ndarray) -> np.ndarray:
+        at = positions if base is None else (
+            base[np.searchsorted(documents, document)] + positions - stream.doc_offsets[document])
+        spans = zip(document.tolist(), starts[at].tolist(), ends[at].tolist(), strict=True)
+        return np.array([_is_capitalised(texts[d][a:b]) for d, a, b in spans], dtype=bool)
+
+    return capitalised
 
 
 def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: np.ndarray) -> np.ndarray:
@@ -277,16 +281,17 @@ def _inside_names(stream: TokenStream, texts: Sequence[str | None], positions: n
     candidates = np.flatnonzero(inside)
     if not len(candidates):
         return inside
-    inside[candidates] = _written_capitalised(stream, texts, positions[candidates])
+    capitalised = _capital_reader(stream, texts, np.unique(document[candidates]))
+    inside[candidates] = capitalised(positions[candidates], document[candidates])
     candidates = np.flatnonzero(inside)  # the few written with a capital: now their neighbours
     if not len(candidates):
         return inside
-    here = positions[candidates]
-    following = np.minimum(here + 1, max(stream.n_tokens - 1, 0))
+    here, own = positions[candidates], document[candidates]
+    following = np.minimum(here + 1, stream.doc_offsets[own + 1] - 1)  # itself when it ends its answer
     stops = stream.vocabulary_flags(default_stop_words().__contains__) | stream.break_flags
     before_named = ~stops[stream.codes[here - 1]]
-    after_named = (here + 1 < stream.doc_offsets[document[candidates] + 1]) & ~stops[stream.codes[following]]
-    capitals = _written_capitalised(stream, texts, np.concatenate([here - 1, following])).reshape(2, len(here))
+    after_named = (following > here) & ~stops[stream.codes[following]]
+    capitals = capitalised(np.concatenate([here - 1, following]), np.concatenate([own, own])).reshape(2, -1)
     inside[candidates] = (before_named & capitals[0]) | (after_named & capitals[1])
     return inside
 
